@@ -1,0 +1,143 @@
+"""The DuckDB database: connections, numbered migrations, named SQL files and read snapshots.
+
+Concurrency design: DuckDB lets one process hold a database file for writing, and other
+processes cannot open it meanwhile. Writers (ingest, analyse, model) work on the main
+file. When a writer commits a unit of work it calls `publish_snapshot`, which checkpoints,
+copies the file to a temporary name beside it and renames it over `<db>.snapshot`
+(an atomic rename on one file system). Readers (the dashboard, reports) open the
+snapshot read-only through `connect_reader`; a reader that holds the old snapshot open
+keeps its inode until it reconnects, so it never sees a lock error or a half-written file.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import shutil
+from collections.abc import Iterator
+from contextlib import contextmanager
+from pathlib import Path
+from typing import Any
+
+import duckdb
+import pandas as pd
+
+from pipeline.errors import DatabaseLockedError, InputError
+
+SQL_DIR = Path(__file__).resolve().parent.parent / "sql"
+_MIGRATION_NAME = re.compile(r"^(\d{3})_([a-z0-9_]+)\.sql$")
+
+
+def sql_text(name: str) -> str:
+    """Text of a named SQL file, e.g. 'views/check_results' or 'queries/fleet_summary'."""
+    path = SQL_DIR / f"{name}.sql"
+    try:
+        return path.read_text(encoding="utf-8")
+    except FileNotFoundError as exc:
+        raise InputError(f"no SQL file named '{name}'", file=str(path)) from exc
+
+
+def connect(path: str | Path, *, read_only: bool = False) -> duckdb.DuckDBPyConnection:
+    """Open a database file; a lock held by another process becomes a DatabaseLockedError."""
+    try:
+        return duckdb.connect(str(path), read_only=read_only)
+    except duckdb.IOException as exc:
+        if "lock" in str(exc).lower():
+            raise DatabaseLockedError(
+                "database is locked by another breathfleet process; wait for it to finish "
+                "or read the published snapshot instead", file=str(path)) from exc
+        raise InputError(f"cannot open database: {exc}", file=str(path)) from exc
+
+
+def open_database(path: str | Path) -> duckdb.DuckDBPyConnection:
+    """Open a database for writing and bring its schema and views up to date."""
+    con = connect(path)
+    migrate(con)
+    return con
+
+
+def migrate(con: duckdb.DuckDBPyConnection) -> list[str]:
+    """Apply numbered schema files not yet recorded, then (re)create every view.
+
+    Safe to re-run. Returns the names of the schema files applied now.
+    """
+    con.execute(sql_text("schema/000_schema_migrations"))
+    done = {row[0] for row in con.execute("SELECT version FROM schema_migrations").fetchall()}
+    applied = []
+    for path in sorted((SQL_DIR / "schema").glob("*.sql")):
+        match = _MIGRATION_NAME.match(path.name)
+        if match is None:
+            raise InputError("schema file name must look like 012_name.sql", file=str(path))
+        version = int(match.group(1))
+        if version == 0 or version in done:
+            continue
+        con.execute("BEGIN TRANSACTION")
+        try:
+            con.execute(path.read_text(encoding="utf-8"))
+            con.execute("INSERT INTO schema_migrations (version, name) VALUES ($version, $name)",
+                        {"version": version, "name": match.group(2)})
+            con.execute("COMMIT")
+        except duckdb.Error as exc:
+            con.execute("ROLLBACK")
+            raise InputError(f"schema migration failed: {exc}", file=str(path)) from exc
+        applied.append(path.name)
+    create_views(con)
+    return applied
+
+
+def create_views(con: duckdb.DuckDBPyConnection) -> None:
+    """Create or replace every view in sql/views, in an order that satisfies their dependencies."""
+    pending = sorted((SQL_DIR / "views").glob("*.sql"))
+    while pending:
+        failed: list[tuple[Path, duckdb.Error]] = []
+        for path in pending:
+            try:
+                con.execute(path.read_text(encoding="utf-8"))
+            except duckdb.CatalogException as exc:  # depends on a view not created yet
+                failed.append((path, exc))
+        if len(failed) == len(pending):
+            path, exc = failed[0]
+            raise InputError(f"view cannot be created: {exc}", file=str(path))
+        pending = [path for path, _ in failed]
+
+
+def query_df(con: duckdb.DuckDBPyConnection, name: str, **params: Any) -> pd.DataFrame:
+    """Run a named SQL file from sql/ with named parameters ($name) and return a DataFrame."""
+    return con.execute(sql_text(name), params or None).df()
+
+
+def snapshot_path(path: str | Path) -> Path:
+    """Where the read snapshot of a database file is published."""
+    path = Path(path)
+    return path.with_name(path.name + ".snapshot")
+
+
+def publish_snapshot(con: duckdb.DuckDBPyConnection, path: str | Path) -> Path:
+    """Checkpoint the writer's database and atomically publish a read-only copy for readers."""
+    path = Path(path)
+    con.execute("CHECKPOINT")
+    target = snapshot_path(path)
+    tmp = target.with_name(f".{target.name}.{os.getpid()}.tmp")
+    shutil.copyfile(path, tmp)
+    os.replace(tmp, target)
+    return target
+
+
+def connect_reader(path: str | Path) -> duckdb.DuckDBPyConnection:
+    """Open the published snapshot read-only; fall back to the main file when none exists yet."""
+    snap = snapshot_path(path)
+    if snap.exists():
+        return connect(snap, read_only=True)
+    return connect(path, read_only=True)
+
+
+@contextmanager
+def transaction(con: duckdb.DuckDBPyConnection) -> Iterator[duckdb.DuckDBPyConnection]:
+    """One transaction: committed on success, rolled back on any exception."""
+    con.execute("BEGIN TRANSACTION")
+    try:
+        yield con
+    except BaseException:
+        con.execute("ROLLBACK")
+        raise
+    con.execute("COMMIT")

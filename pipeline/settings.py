@@ -1,0 +1,176 @@
+"""One frozen settings object, loaded from TOML and passed explicitly.
+
+Each section is a frozen dataclass; a feature owns its section. Unknown keys are
+rejected with an InputError naming the file and the key, so a typo never falls back
+to a default silently. Lists in TOML become tuples so the object stays hashable.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+import json
+import tomllib
+import types
+import typing
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from pipeline.errors import InputError
+
+
+@dataclass(frozen=True)
+class IngestSettings:
+    """How source files are read and validated."""
+
+    # Physical range of a breath alcohol result in g/210L; outside it a row is quarantined.
+    measured_min: float = 0.0
+    measured_max: float = 0.6
+    # A check stamped more than this far past the time of ingest is quarantined.
+    future_tolerance_hours: float = 24.0
+    # Local file with the key for the keyed hash of operator codes; never stored in the database.
+    operator_key_file: str = "~/.config/breathfleet/operator.key"
+
+
+@dataclass(frozen=True)
+class ToleranceRule:
+    """An acceptance window: |measured - expected| <= max(absolute, relative * expected).
+
+    `check_type` and `level` narrow where the rule applies; empty means any.
+    """
+
+    absolute: float = 0.005
+    relative: float = 0.05
+    check_type: str = ""
+    level: float = 0.0
+
+
+@dataclass(frozen=True)
+class StandardsSettings:
+    """Expected values of reference standards and acceptance tolerance."""
+
+    simulator_nominal_c: float = 34.0
+    simulator_window_c: float = 0.2
+    correct_wet_bath_temperature: bool = True
+    correct_dry_gas_pressure: bool = True
+    # Technologies or models that compensate for barometric pressure themselves.
+    pressure_compensating_technologies: tuple[str, ...] = ()
+    pressure_compensating_models: tuple[str, ...] = ()
+    # Rules are tried from the most specific (type and level) to the default.
+    tolerance_rules: tuple[ToleranceRule, ...] = (ToleranceRule(),)
+
+
+@dataclass(frozen=True)
+class ChartSettings:
+    """Control chart design and baselines."""
+
+    own_baseline_min_checks: int = 20
+    target_arl0: float = 500.0
+    shift_sigma: float = 1.0
+    run_rules: str = "western_electric"
+    fleet_fdr_q: float = 0.05
+
+
+@dataclass(frozen=True)
+class ModelSettings:
+    """Fleet mixed-effects model and lot verdicts."""
+
+    window_days: int = 365
+    lot_off_effect_pct: float = 2.0
+    lot_watch_effect_pct: float = 1.0
+
+
+@dataclass(frozen=True)
+class QueueSettings:
+    """Service queue evidence and horizons."""
+
+    calibration_interval_days: int = 365
+    silence_days: int = 14
+    horizon_days: int = 30
+
+
+@dataclass(frozen=True)
+class SmtpSettings:
+    """Where the weekly digest is mailed."""
+
+    host: str = "localhost"
+    port: int = 25
+    sender: str = "breathfleet@localhost"
+    recipients: tuple[str, ...] = ()
+    starttls: bool = False
+    username: str = ""
+    password_file: str = ""
+
+
+@dataclass(frozen=True)
+class Settings:
+    """All settings of one breathfleet installation."""
+
+    ingest: IngestSettings = field(default_factory=IngestSettings)
+    standards: StandardsSettings = field(default_factory=StandardsSettings)
+    charts: ChartSettings = field(default_factory=ChartSettings)
+    model: ModelSettings = field(default_factory=ModelSettings)
+    queue: QueueSettings = field(default_factory=QueueSettings)
+    smtp: SmtpSettings = field(default_factory=SmtpSettings)
+
+    def as_dict(self) -> dict[str, Any]:
+        """Plain nested dict, for recording with results."""
+        return dataclasses.asdict(self)
+
+    def digest(self) -> str:
+        """Short SHA-256 of the settings, recorded in report headers."""
+        text = json.dumps(self.as_dict(), sort_keys=True, default=str)
+        return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
+def load_settings(path: str | Path | None = None) -> Settings:
+    """Load settings from a TOML file; None gives the defaults.
+
+    Raises:
+        InputError: the file cannot be read or parsed, holds an unknown key, or a value of the wrong type.
+    """
+    if path is None:
+        return Settings()
+    path = Path(path)
+    try:
+        raw = tomllib.loads(path.read_text(encoding="utf-8"))
+    except OSError as exc:
+        raise InputError(f"cannot read settings file: {exc.strerror}", file=str(path)) from exc
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"settings file is not valid TOML: {exc}", file=str(path)) from exc
+    return build_dataclass(Settings, raw, file=str(path), prefix="")
+
+
+def build_dataclass(cls: type, raw: dict[str, Any], *, file: str, prefix: str) -> Any:
+    """Build a frozen dataclass from a TOML table, rejecting unknown keys by name."""
+    hints = typing.get_type_hints(cls)
+    known = {f.name for f in dataclasses.fields(cls)}
+    values: dict[str, Any] = {}
+    for key, value in raw.items():
+        dotted = f"{prefix}{key}"
+        if key not in known:
+            raise InputError(f"unknown key '{dotted}'; known keys here: {', '.join(sorted(known))}",
+                             file=file, field=dotted)
+        values[key] = _coerce(hints[key], value, file=file, dotted=dotted)
+    return cls(**values)
+
+
+def _coerce(hint: Any, value: Any, *, file: str, dotted: str) -> Any:
+    origin = typing.get_origin(hint)
+    if dataclasses.is_dataclass(hint):
+        if not isinstance(value, dict):
+            raise InputError(f"'{dotted}' must be a table", file=file, field=dotted)
+        return build_dataclass(hint, value, file=file, prefix=f"{dotted}.")
+    if origin is tuple:
+        (item_hint, _ellipsis) = typing.get_args(hint)
+        if not isinstance(value, list):
+            raise InputError(f"'{dotted}' must be a list", file=file, field=dotted)
+        return tuple(_coerce(item_hint, v, file=file, dotted=f"{dotted}[{i}]") for i, v in enumerate(value))
+    if origin in (typing.Union, types.UnionType):
+        return value
+    if hint is float and isinstance(value, int) and not isinstance(value, bool):
+        return float(value)
+    if isinstance(hint, type) and not isinstance(value, hint):
+        raise InputError(f"'{dotted}' must be of type {hint.__name__}, got {value!r}", file=file, field=dotted)
+    return value
