@@ -1,0 +1,1 @@
+"""Benchmarks: speed and memory as ratios against baselines measured in the same run."""
