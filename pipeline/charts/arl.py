@@ -1,0 +1,313 @@
+"""Average run lengths of Shewhart, CUSUM and EWMA charts for standardised normal data.
+
+All functions work in sigma units: the chart watches z = (x - center) / sigma, `shift`
+is a step change of the mean in sigma units and `drift` a linear trend in sigma per check.
+Zero-state run lengths (the chart starts fresh) are returned unless a headstart is given.
+
+Methods:
+- CUSUM: Markov chain of Brook & Evans (1972), Biometrika 59:539-549, with `n_states`
+  states on [0, h]; the two sides combined by 1/ARL = 1/ARL+ + 1/ARL-
+  (Lucas & Crosier 1982, Technometrics 24:199-205). Siegmund's (1985) approximation as a check.
+- EWMA: Nystrom solution of the integral equation with Gauss-Legendre nodes
+  (Crowder 1987, Technometrics 29:401-407), and the Markov chain of Lucas & Saccucci
+  (1990, Technometrics 32:1-12) as a second method.
+- Linear drift: the same chains with a transition matrix that changes every check
+  (Gan 1991, J. Statist. Comput. Simul. 38:181-200; Aerne, Champ & Rigdon 1991).
+
+Discretisation: a Brook-Evans chain replaces the continuous CUSUM by m cells of width
+w = 2h/(2m - 1); its error shrinks roughly like 1/m^2, and with the default 400 states it
+is below 0.1 % for the charts used here (tests compare with m and 2m).
+"""
+
+from __future__ import annotations
+
+import math
+from functools import lru_cache
+
+import numpy as np
+from scipy.special import ndtr
+
+CUSUM_STATES = 400
+EWMA_NODES = 100
+# A drift run length is summed until the chart has signalled with this probability ...
+_SURVIVAL_TOL = 1e-12
+# ... or for this many checks at most (a drift so slow it never signals is reported as inf).
+_MAX_STEPS = 200_000
+
+
+def _check_positive(**values: float) -> None:
+    for name, value in values.items():
+        if not (value > 0 and math.isfinite(value)):
+            raise ValueError(f"{name} must be positive and finite, got {value!r}")
+
+
+# ----------------------------------------------------------------------------- Shewhart
+
+
+def shewhart_arl(L: float = 3.0, shift: float = 0.0) -> float:
+    """ARL of an individuals chart with limits at +-L sigma for a step shift.
+
+    Source: ARL = 1 / P(signal) for independent checks, P = 1 - Phi(L - d) + Phi(-L - d)
+    (Montgomery, Introduction to Statistical Quality Control, section 6.3).
+    """
+    _check_positive(L=L)
+    p = ndtr(-L - shift) + ndtr(-L + shift)
+    return float(1.0 / p)
+
+
+def shewhart_drift_arl(L: float, drift: float, shift: float = 0.0, *, first_check_shifted: bool = True) -> float:
+    """ARL of an individuals chart under a linear drift of `drift` sigma per check.
+
+    The mean at check t is shift + drift * t (or drift * (t - 1) when first_check_shifted is False).
+    Source: Aerne, Champ & Rigdon (1991), Commun. Statist. Theory Methods 20:3341-3349.
+    """
+    _check_positive(L=L)
+    t = np.arange(1, _MAX_STEPS + 1, dtype=float)
+    mean = shift + drift * (t if first_check_shifted else t - 1.0)
+    p = ndtr(-L - mean) + ndtr(-L + mean)
+    survival = np.cumprod(1.0 - p)
+    return float(1.0 + survival.sum())
+
+
+# ----------------------------------------------------------------------------- CUSUM
+
+
+@lru_cache(maxsize=16)
+def _cusum_grid(h: float, n_states: int) -> tuple[np.ndarray, float, np.ndarray]:
+    w = 2.0 * h / (2 * n_states - 1)
+    centers = np.arange(n_states) * w
+    diff = np.arange(n_states)[None, :] - np.arange(n_states)[:, None]  # j - i
+    return centers, w, diff
+
+
+def _cusum_matrix(k: float, h: float, shift: float, n_states: int) -> np.ndarray:
+    """One-sided upper CUSUM transition matrix among the in-control states (Brook & Evans)."""
+    centers, w, diff = _cusum_grid(h, n_states)
+    m = n_states
+    # P(move by d cells) depends only on d = j - i: the matrix is Toeplitz.
+    d = np.arange(-(m - 1), m)
+    upper = ndtr(d * w + w / 2.0 + k - shift)
+    lower = ndtr(d * w - w / 2.0 + k - shift)
+    R = (upper - lower)[diff + (m - 1)]
+    R[:, 0] = ndtr(w / 2.0 - centers + k - shift)  # reset to zero
+    return R
+
+
+def _start_state(headstart: float, h: float, n_states: int) -> int:
+    if headstart < 0 or headstart >= h:
+        raise ValueError(f"headstart must lie in [0, h), got {headstart!r} with h = {h!r}")
+    _, w, _ = _cusum_grid(h, n_states)
+    return int(round(headstart / w))
+
+
+def cusum_one_sided_arl(k: float, h: float, shift: float = 0.0, headstart: float = 0.0,
+                        *, n_states: int = CUSUM_STATES) -> float:
+    """ARL of the upper one-sided tabular CUSUM S_t = max(0, S_{t-1} + z_t - k), signal at S_t > h.
+
+    Parameters: k reference value, h decision interval, shift mean of z, headstart S_0 (FIR).
+    Returns: the ARL from S_0 = headstart.
+    Source: Brook & Evans (1972) Markov chain.
+    """
+    _check_positive(h=h)
+    R = _cusum_matrix(k, h, shift, n_states)
+    arl = np.linalg.solve(np.eye(n_states) - R, np.ones(n_states))
+    return float(arl[_start_state(headstart, h, n_states)])
+
+
+def cusum_arl(k: float, h: float, shift: float = 0.0, headstart: float = 0.0,
+              *, n_states: int = CUSUM_STATES) -> float:
+    """ARL of the two-sided tabular CUSUM (both sides start at `headstart`).
+
+    Parameters: k, h in sigma units; shift the step change in sigma; headstart the fast
+    initial response value (Lucas & Crosier 1982), 0 for zero state.
+    Returns: 1 / (1/ARL+ + 1/ARL-), the lower side evaluated as an upper CUSUM at -shift.
+    Source: Brook & Evans (1972); combination of the sides by Lucas & Crosier (1982), which is
+    exact for the zero-state chart and an approximation with a headstart.
+    """
+    up = cusum_one_sided_arl(k, h, shift, headstart, n_states=n_states)
+    down = cusum_one_sided_arl(k, h, -shift, headstart, n_states=n_states)
+    return float(1.0 / (1.0 / up + 1.0 / down))
+
+
+def siegmund_arl(k: float, h: float, shift: float = 0.0, *, sided: str = "two") -> float:
+    """Siegmund's (1985) approximation of the CUSUM ARL.
+
+    Source: ARL = [exp(-2 D b) + 2 D b - 1] / (2 D^2) with b = h + 1.166 and D = shift - k
+    (ARL = b^2 when D = 0); two sides combined by 1/ARL = 1/ARL+ + 1/ARL-.
+    Siegmund, Sequential Analysis (1985); Montgomery, section 9.1.
+    """
+    b = h + 1.166
+
+    def one(delta: float) -> float:
+        dd = delta - k
+        if abs(dd) < 1e-12:
+            return b * b
+        return (math.exp(-2.0 * dd * b) + 2.0 * dd * b - 1.0) / (2.0 * dd * dd)
+
+    if sided == "one":
+        return one(shift)
+    if sided != "two":
+        raise ValueError(f"sided must be 'one' or 'two', got {sided!r}")
+    return 1.0 / (1.0 / one(shift) + 1.0 / one(-shift))
+
+
+def cusum_one_sided_survival(k: float, h: float, t_max: int, shift: float = 0.0, headstart: float = 0.0,
+                             *, n_states: int = CUSUM_STATES) -> np.ndarray:
+    """P(RL > t) for t = 1..t_max of the upper one-sided CUSUM (Brook & Evans chain)."""
+    R = _cusum_matrix(k, h, shift, n_states)
+    v = np.zeros(n_states)
+    v[_start_state(headstart, h, n_states)] = 1.0
+    out = np.empty(t_max)
+    for t in range(t_max):
+        v = v @ R
+        out[t] = v.sum()
+    return out
+
+
+def cusum_survival(k: float, h: float, t_max: int, shift: float = 0.0, headstart: float = 0.0,
+                   *, n_states: int = CUSUM_STATES) -> np.ndarray:
+    """P(RL > t), t = 1..t_max, of the two-sided CUSUM, as the product of the sides' survivals.
+
+    The product treats the sides as independent, which is the survival-function form of the
+    Lucas & Crosier combination of ARLs; a test checks it against simulation.
+    """
+    up = cusum_one_sided_survival(k, h, t_max, shift, headstart, n_states=n_states)
+    down = cusum_one_sided_survival(k, h, t_max, -shift, headstart, n_states=n_states)
+    return up * down
+
+
+def _sum_survival(step, v: np.ndarray) -> float:
+    """1 + sum over t of P(RL > t), iterating a time-varying chain v <- v R_t."""
+    total = 1.0
+    for t in range(1, _MAX_STEPS + 1):
+        v = step(t, v)
+        s = v.sum()
+        total += s
+        if s < _SURVIVAL_TOL:
+            return float(total)
+    return math.inf
+
+
+def cusum_drift_arl(k: float, h: float, drift: float, shift: float = 0.0, headstart: float = 0.0,
+                    *, first_check_shifted: bool = True, n_states: int = 200) -> float:
+    """ARL of the upper one-sided CUSUM when the mean drifts linearly.
+
+    The mean at check t is shift + drift * t, or shift + drift * (t - 1) when
+    first_check_shifted is False (Gan's convention). For an upward drift the upper side is the
+    one that signals; a two-sided chart's drift ARL is within a fraction of a percent of this
+    (the lower side's hazard under an upward drift is tiny), checked by simulation in the tests.
+    Source: time-varying Brook & Evans chain (Gan 1992; Aerne, Champ & Rigdon 1991).
+    """
+    _check_positive(h=h)
+    if drift < 0:
+        return cusum_drift_arl(k, h, -drift, -shift, headstart, first_check_shifted=first_check_shifted,
+                               n_states=n_states)
+    offset = 0.0 if first_check_shifted else -1.0
+    v = np.zeros(n_states)
+    v[_start_state(headstart, h, n_states)] = 1.0
+    return _sum_survival(lambda t, v: v @ _cusum_matrix(k, h, shift + drift * (t + offset), n_states), v)
+
+
+# ----------------------------------------------------------------------------- EWMA
+
+
+def ewma_limit(lam: float, L: float) -> float:
+    """Half-width of the asymptotic EWMA limits, L sqrt(lam / (2 - lam)), in sigma units of z."""
+    if not 0 < lam <= 1:
+        raise ValueError(f"lambda must lie in (0, 1], got {lam!r}")
+    _check_positive(L=L)
+    return L * math.sqrt(lam / (2.0 - lam))
+
+
+@lru_cache(maxsize=8)
+def _gauss_legendre(n: int) -> tuple[np.ndarray, np.ndarray]:
+    return np.polynomial.legendre.leggauss(n)
+
+
+def _ewma_nodes(lam: float, L: float, n_nodes: int) -> tuple[np.ndarray, np.ndarray, float]:
+    H = ewma_limit(lam, L)
+    x, w = _gauss_legendre(n_nodes)
+    return H * x, H * w, H
+
+
+def _ewma_kernel(lam: float, nodes: np.ndarray, weights: np.ndarray, shift: float, start: np.ndarray) -> np.ndarray:
+    """K[i, j] = w_j f(y_j | start_i): density of the next EWMA value y given the current one."""
+    arg = (nodes[None, :] - (1.0 - lam) * start[:, None]) / lam - shift
+    return weights[None, :] * np.exp(-0.5 * arg * arg) / (lam * math.sqrt(2.0 * math.pi))
+
+
+def ewma_arl(lam: float, L: float, shift: float = 0.0, *, start: float = 0.0, method: str = "integral",
+             n_nodes: int = EWMA_NODES) -> float:
+    """ARL of the two-sided EWMA z_t = lam x_t + (1 - lam) z_{t-1} with fixed limits +-L sqrt(lam/(2-lam)).
+
+    Parameters: lam smoothing constant in (0, 1]; L limit multiple; shift step change in sigma;
+    start z_0 in sigma units; method "integral" (Crowder 1987, Gauss-Legendre Nystrom with
+    n_nodes nodes) or "markov" (Lucas & Saccucci 1990, 2 n_nodes + 1 states).
+    Returns: the zero-state ARL.
+    """
+    if method == "markov":
+        return _ewma_markov_arl(lam, L, shift, start, n_nodes)
+    if method != "integral":
+        raise ValueError(f"method must be 'integral' or 'markov', got {method!r}")
+    nodes, weights, H = _ewma_nodes(lam, L, n_nodes)
+    if abs(start) >= H:
+        raise ValueError(f"start must lie inside the limits +-{H:.4g}, got {start!r}")
+    K = _ewma_kernel(lam, nodes, weights, shift, nodes)
+    a = np.linalg.solve(np.eye(n_nodes) - K, np.ones(n_nodes))
+    k0 = _ewma_kernel(lam, nodes, weights, shift, np.array([start]))[0]
+    return float(1.0 + k0 @ a)
+
+
+def _ewma_markov_matrix(lam: float, L: float, shift: float, m: int) -> tuple[np.ndarray, np.ndarray]:
+    H = ewma_limit(lam, L)
+    w = 2.0 * H / m
+    centers = -H + (np.arange(m) + 0.5) * w
+    base = (1.0 - lam) * centers[:, None]
+    R = ndtr((centers[None, :] + w / 2.0 - base) / lam - shift) - ndtr((centers[None, :] - w / 2.0 - base) / lam - shift)
+    return R, centers
+
+
+def _ewma_markov_arl(lam: float, L: float, shift: float, start: float, n_nodes: int) -> float:
+    m = 2 * n_nodes + 1
+    R, centers = _ewma_markov_matrix(lam, L, shift, m)
+    arl = np.linalg.solve(np.eye(m) - R, np.ones(m))
+    return float(arl[int(np.argmin(np.abs(centers - start)))])
+
+
+def ewma_survival(lam: float, L: float, t_max: int, shift: float = 0.0, *, n_nodes: int = EWMA_NODES) -> np.ndarray:
+    """P(RL > t), t = 1..t_max, of the zero-state two-sided EWMA (Nystrom, Crowder 1987)."""
+    nodes, weights, _ = _ewma_nodes(lam, L, n_nodes)
+    K = _ewma_kernel(lam, nodes, weights, shift, nodes)
+    v = _ewma_kernel(lam, nodes, weights, shift, np.array([0.0]))[0]
+    out = np.empty(t_max)
+    for t in range(t_max):
+        out[t] = v.sum()
+        v = v @ K
+    return np.minimum(out, 1.0)
+
+
+def ewma_drift_arl(lam: float, L: float, drift: float, shift: float = 0.0, *, first_check_shifted: bool = True,
+                   n_nodes: int = EWMA_NODES) -> float:
+    """ARL of the two-sided EWMA (fixed limits) when the mean drifts by `drift` sigma per check.
+
+    The mean at check t is shift + drift * t, or shift + drift * (t - 1) when
+    first_check_shifted is False (Gan's convention).
+    Source: Nystrom form of the time-varying chain of Gan (1991), J. Statist. Comput. Simul. 38:181-200.
+    """
+    nodes, weights, _ = _ewma_nodes(lam, L, n_nodes)
+    offset = 0.0 if first_check_shifted else -1.0
+    # The kernel depends on the mean only through a shift of its argument; precompute the part
+    # that does not change. P(RL > t) = v_t . 1 with v_1 = K_1(0, .) and v_{t+1} = v_t K_{t+1}.
+    base = (nodes[None, :] - (1.0 - lam) * nodes[:, None]) / lam
+    scale = weights[None, :] / (lam * math.sqrt(2.0 * math.pi))
+    v0 = _ewma_kernel(lam, nodes, weights, shift + drift * (1.0 + offset), np.array([0.0]))[0]
+    total = 1.0 + v0.sum()
+    v = v0
+    for t in range(2, _MAX_STEPS + 1):
+        arg = base - (shift + drift * (t + offset))
+        v = v @ (scale * np.exp(-0.5 * arg * arg))
+        s = v.sum()
+        total += s
+        if s < _SURVIVAL_TOL:
+            return float(total)
+    return math.inf
