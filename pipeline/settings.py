@@ -59,6 +59,18 @@ class StandardsSettings:
     pressure_compensating_models: tuple[str, ...] = ()
     # Rules are tried from the most specific (type and level) to the default.
     tolerance_rules: tuple[ToleranceRule, ...] = (ToleranceRule(),)
+    # Dubowski (1979): K_a/w x 10^3 = 0.04145 exp(0.06583 T); only the exponent scales a lot
+    # certified at simulator_nominal_c to the logged temperature.
+    wet_bath_temperature_coefficient: float = 0.06583
+    # Vapour (g/210L) per solution (g/100 mL) at the nominal temperature; common practice 0.100/0.121.
+    wet_bath_solution_to_vapour: float = 0.100 / 0.121
+    reference_pressure_kpa: float = 101.325
+    # Uncertainty budget inputs (standard uncertainties unless said otherwise).
+    simulator_thermometer_u_c: float = 0.05          # logged simulator temperature, deg C
+    barometer_u_kpa: float = 0.3                     # logged barometric pressure, kPa
+    elevation_pressure_u_kpa: float = 1.5            # weather around the standard-atmosphere value, kPa
+    result_resolution: float = 0.001                 # g/210L step of reported results
+    results_truncated: bool = True                   # truncated (not rounded) to the step
 
 
 @dataclass(frozen=True)
