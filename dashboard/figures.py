@@ -1,0 +1,253 @@
+"""Pure chart builders: DataFrame in, Altair chart out. No Streamlit, no SQL, no statistics.
+
+Palette: Okabe & Ito (2008), "Color Universal Design", eight colours distinguishable by
+readers with the common forms of colour-vision deficiency. Every state is also told apart
+by shape or position, and each page shows the same numbers as a table.
+"""
+
+from __future__ import annotations
+
+import altair as alt
+import pandas as pd
+
+OKABE_ITO = {
+    "black": "#000000", "orange": "#E69F00", "sky_blue": "#56B4E9", "green": "#009E73",
+    "yellow": "#F0E442", "blue": "#0072B2", "vermillion": "#D55E00", "purple": "#CC79A7",
+    "grey": "#999999",
+}
+STATE_COLOURS = {
+    "in control": OKABE_ITO["blue"],
+    "signal": OKABE_ITO["orange"],
+    "out of tolerance": OKABE_ITO["vermillion"],
+    "not charted": OKABE_ITO["grey"],
+}
+STATE_SHAPES = {"in control": "circle", "signal": "triangle-up", "out of tolerance": "diamond",
+                "not charted": "square"}
+VERDICT_COLOURS = {"agrees": OKABE_ITO["blue"], "watch": OKABE_ITO["orange"], "off": OKABE_ITO["vermillion"]}
+EVENT_COLOURS = {"calibration": OKABE_ITO["green"], "sensor_replacement": OKABE_ITO["green"],
+                 "solution_change": OKABE_ITO["sky_blue"], "lot_change": OKABE_ITO["purple"],
+                 "repair": OKABE_ITO["black"], "out_of_service": OKABE_ITO["grey"],
+                 "return_to_service": OKABE_ITO["grey"]}
+WIDTH = "container"
+
+
+def _scale(mapping: dict[str, str], present: pd.Series | None = None) -> alt.Scale:
+    keys = [k for k in mapping if present is None or k in set(present)]
+    return alt.Scale(domain=keys, range=[mapping[k] for k in keys])
+
+
+def state_by_region(counts: pd.DataFrame) -> alt.Chart:
+    """Stacked bars: units per region, split by state (columns region, state, units)."""
+    return alt.Chart(counts).mark_bar().encode(
+        y=alt.Y("region:N", title="region", sort="-x"),
+        x=alt.X("units:Q", title="units", stack="zero"),
+        color=alt.Color("state:N", scale=_scale(STATE_COLOURS), title="state",
+                        legend=alt.Legend(orient="bottom")),
+        order=alt.Order("state_order:Q"),
+        tooltip=["region:N", "state:N", "units:Q"],
+    ).transform_calculate(
+        state_order="indexof(['out of tolerance','signal','in control','not charted'], datum.state)",
+    ).properties(width=WIDTH, height=alt.Step(22), title="Units by region and state")
+
+
+def unit_tiles(states: pd.DataFrame) -> alt.Chart:
+    """One mark per unit, rows by site: colour and shape both give the state."""
+    return alt.Chart(states).mark_point(filled=True, size=70).encode(
+        x=alt.X("position:O", title=None, axis=None),
+        y=alt.Y("site_id:N", title="site"),
+        color=alt.Color("state:N", scale=_scale(STATE_COLOURS), title="state",
+                        legend=alt.Legend(orient="bottom")),
+        shape=alt.Shape("state:N", scale=_scale(STATE_SHAPES), legend=None),
+        tooltip=["instrument_id:N", "site_id:N", "state:N", "recent_signals:Q", "last_check_at:T"],
+    ).transform_window(
+        position="rank()", groupby=["site_id"], sort=[alt.SortField("instrument_id")],
+    ).properties(width=WIDTH, height=alt.Step(16), title="Every unit, by site")
+
+
+def fleet_trend(trend: pd.DataFrame, tolerance_pct: float) -> alt.LayerChart:
+    """Weekly fleet mean relative error with its 10-90 % band, per standard kind, and the tolerance."""
+    base = alt.Chart(trend).encode(x=alt.X("week:T", title="week"))
+    colour = alt.Color("standard_kind:N", title="standard",
+                       scale=alt.Scale(range=[OKABE_ITO["blue"], OKABE_ITO["orange"], OKABE_ITO["green"]]))
+    band = base.mark_area(opacity=0.2).encode(y="p10_pct:Q", y2="p90_pct:Q", color=colour)
+    line = base.mark_line(point=alt.OverlayMarkDef(size=12)).encode(
+        y=alt.Y("mean_pct:Q", title="relative error (%)"), color=colour,
+        tooltip=["week:T", "standard_kind:N", alt.Tooltip("mean_pct:Q", format=".2f"),
+                 alt.Tooltip("p10_pct:Q", format=".2f"), alt.Tooltip("p90_pct:Q", format=".2f"), "n_checks:Q"])
+    return alt.layer(band, line, _tolerance_rules(tolerance_pct)).properties(
+        width=WIDTH, height=260, title="Fleet relative error by week (line: mean; band: 10th-90th percentile)")
+
+
+def _tolerance_rules(tolerance_pct: float) -> alt.Chart:
+    limits = pd.DataFrame({"y": [-tolerance_pct, tolerance_pct], "what": ["tolerance", "tolerance"]})
+    return alt.Chart(limits).mark_rule(strokeDash=[6, 3], color=OKABE_ITO["vermillion"]).encode(
+        y="y:Q", tooltip=[alt.Tooltip("y:Q", title="tolerance (%)")])
+
+
+def _event_rules(events: pd.DataFrame | None) -> list[alt.Chart]:
+    if events is None or events.empty:
+        return []
+    return [alt.Chart(events).mark_rule(strokeWidth=1.5, opacity=0.7).encode(
+        x="event_at:T",
+        color=alt.Color("event_type:N", scale=_scale(EVENT_COLOURS, events["event_type"]), title="event"),
+        strokeDash=alt.StrokeDash("event_type:N", legend=None),
+        tooltip=["event_at:T", "event_type:N", "notes:N"])]
+
+
+def _signal_windows(signals: pd.DataFrame | None, chart: str | None = None) -> list[alt.Chart]:
+    if signals is None or signals.empty:
+        return []
+    data = signals if chart is None else signals[signals["chart"] == chart]
+    if data.empty:
+        return []
+    window = alt.Chart(data).mark_rect(opacity=0.15, color=OKABE_ITO["orange"]).encode(
+        x="onset_at:T", x2="measured_at:T",
+        tooltip=["chart:N", "rule:N", "direction:N", "onset_at:T", "measured_at:T", "impact_checks:Q"])
+    mark = alt.Chart(data).mark_point(shape="triangle-down", filled=True, size=90,
+                                      color=OKABE_ITO["orange"]).encode(
+        x="measured_at:T", y=alt.value(6), tooltip=["chart:N", "rule:N", "direction:N", "measured_at:T"])
+    return [window, mark]
+
+
+def relative_error_chart(checks: pd.DataFrame, tolerance_pct: float, events: pd.DataFrame | None = None,
+                         signals: pd.DataFrame | None = None) -> alt.LayerChart:
+    """A unit's checks at one level as relative error (%), pass/fail by shape, tolerance band, events."""
+    points = alt.Chart(checks).mark_point(filled=True, size=28).encode(
+        x=alt.X("measured_at:T", title="measured at (UTC)"),
+        y=alt.Y("relative_error_pct:Q", title="relative error (%)"),
+        shape=alt.Shape("verdict:N", scale=alt.Scale(domain=["pass", "fail"], range=["circle", "cross"])),
+        color=alt.Color("verdict:N", scale=alt.Scale(domain=["pass", "fail"],
+                                                      range=[OKABE_ITO["blue"], OKABE_ITO["vermillion"]])),
+        tooltip=["measured_at:T", "lot_id:N", "check_type:N", "measured:Q", "expected:Q",
+                 alt.Tooltip("relative_error_pct:Q", format=".2f"), "verdict:N", "outcome:N"])
+    layers = [*_signal_windows(signals), points, _tolerance_rules(tolerance_pct), *_event_rules(events)]
+    return alt.layer(*layers).resolve_scale(color="independent", shape="independent").properties(
+        width=WIDTH, height=240, title="Checks: relative error against tolerance")
+
+
+def _limit_lines(points: pd.DataFrame, value: str, limits: list[str], y_title: str, title: str,
+                 events: pd.DataFrame | None, signals: pd.DataFrame | None, chart: str) -> alt.LayerChart:
+    base = alt.Chart(points).encode(x=alt.X("measured_at:T", title="measured at (UTC)"))
+    line = base.mark_line(color=OKABE_ITO["blue"], strokeWidth=1,
+                          point=alt.OverlayMarkDef(size=14, color=OKABE_ITO["blue"])).encode(
+        y=alt.Y(f"{value}:Q", title=y_title),
+        tooltip=["measured_at:T", alt.Tooltip(f"{value}:Q", format=".3f")] +
+                [alt.Tooltip(f"{c}:Q", format=".3f") for c in limits])
+    rules = [base.mark_line(color=OKABE_ITO["vermillion"], strokeDash=[5, 3], interpolate="step-after")
+             .encode(y=f"{c}:Q") for c in limits]
+    return alt.layer(*_signal_windows(signals, chart), line, *rules, *_event_rules(events)).properties(
+        width=WIDTH, height=200, title=title)
+
+
+def individuals_chart(points, events=None, signals=None) -> alt.LayerChart:
+    """Individuals chart of the standardised relative error z with its limits."""
+    return _limit_lines(points, "z", ["ind_lcl", "ind_ucl"], "z (standardised)",
+                        "Individuals (standardised relative error)", events, signals, "individuals")
+
+
+def moving_range_chart(points, events=None, signals=None) -> alt.LayerChart:
+    """Moving range chart with its upper limit."""
+    return _limit_lines(points, "moving_range", ["mr_ucl"], "moving range", "Moving range",
+                        events, signals, "moving_range")
+
+
+def cusum_chart(points: pd.DataFrame, h: float | None, events=None, signals=None) -> alt.LayerChart:
+    """Upper and lower CUSUM (lower drawn negative) with the decision interval +/- h."""
+    long = pd.concat([
+        points[["measured_at"]].assign(side="upper", value=points["cusum_upper"]),
+        points[["measured_at"]].assign(side="lower", value=-points["cusum_lower"].abs()),
+    ])
+    base = alt.Chart(long).mark_line(strokeWidth=1).encode(
+        x=alt.X("measured_at:T", title="measured at (UTC)"), y=alt.Y("value:Q", title="CUSUM (sigma units)"),
+        color=alt.Color("side:N", scale=alt.Scale(domain=["upper", "lower"],
+                                                   range=[OKABE_ITO["blue"], OKABE_ITO["green"]])),
+        strokeDash=alt.StrokeDash("side:N", legend=None), tooltip=["measured_at:T", "side:N", "value:Q"])
+    layers = [*_signal_windows(signals, "cusum"), base]
+    if h is not None:
+        hlines = pd.DataFrame({"y": [h, -h]})
+        layers.append(alt.Chart(hlines).mark_rule(color=OKABE_ITO["vermillion"], strokeDash=[5, 3]).encode(y="y:Q"))
+    layers += _event_rules(events)
+    return alt.layer(*layers).resolve_scale(color="independent").properties(
+        width=WIDTH, height=200, title="CUSUM (upper and lower) with decision interval")
+
+
+def ewma_chart(points, events=None, signals=None) -> alt.LayerChart:
+    """EWMA of the standardised relative error with its time-varying limits."""
+    return _limit_lines(points, "ewma", ["ewma_lcl", "ewma_ucl"], "EWMA (z)", "EWMA", events, signals, "ewma")
+
+
+def forecast_chart(forecast: pd.DataFrame, tolerance_pct: float) -> alt.LayerChart:
+    """Projected bias (%) with its 95 % band against the tolerance."""
+    data = forecast.assign(low=forecast["bias_pct"] - 1.959964 * forecast["se_pct"],
+                           high=forecast["bias_pct"] + 1.959964 * forecast["se_pct"])
+    base = alt.Chart(data).encode(x=alt.X("at:T", title="date"))
+    band = base.mark_area(opacity=0.25, color=OKABE_ITO["sky_blue"]).encode(y="low:Q", y2="high:Q")
+    line = base.mark_line(color=OKABE_ITO["blue"]).encode(
+        y=alt.Y("bias_pct:Q", title="projected bias (%)"),
+        tooltip=["at:T", alt.Tooltip("bias_pct:Q", format=".2f"), alt.Tooltip("low:Q", format=".2f"),
+                 alt.Tooltip("high:Q", format=".2f")])
+    return alt.layer(band, line, _tolerance_rules(tolerance_pct)).properties(
+        width=WIDTH, height=200, title="Forecast of bias to tolerance (95 % band, linear drift)")
+
+
+def funnel_chart(units: pd.DataFrame, limits: pd.DataFrame) -> alt.LayerChart:
+    """Funnel plot: each unit's mean relative error against its number of checks, with 95 % and
+    99.8 % limits around the fleet mean. Source: Spiegelhalter (2005), Stat Med 24:1185-1202."""
+    x = alt.X("n_checks:Q", title="number of checks", scale=alt.Scale(type="log"))
+    lim = alt.Chart(limits).encode(x=x)
+    layers = [
+        lim.mark_line(color=OKABE_ITO["grey"]).encode(y="target_pct:Q"),
+        lim.mark_line(color=OKABE_ITO["orange"], strokeDash=[6, 3]).encode(y="lower95:Q"),
+        lim.mark_line(color=OKABE_ITO["orange"], strokeDash=[6, 3]).encode(y="upper95:Q"),
+        lim.mark_line(color=OKABE_ITO["vermillion"]).encode(y="lower998:Q"),
+        lim.mark_line(color=OKABE_ITO["vermillion"]).encode(y="upper998:Q"),
+    ]
+    band = units.assign(band=pd.cut(units["z"].abs(), [-1, 1.959964, 3.090232, float("inf")],
+                                    labels=["inside 95 %", "outside 95 %", "outside 99.8 %"]).astype(str))
+    layers.append(alt.Chart(band).mark_point(filled=True, size=36, opacity=0.8).encode(
+        x=x, y=alt.Y("mean_pct:Q", title="mean relative error (%)"),
+        color=alt.Color("band:N", title="position", scale=alt.Scale(
+            domain=["inside 95 %", "outside 95 %", "outside 99.8 %"],
+            range=[OKABE_ITO["blue"], OKABE_ITO["orange"], OKABE_ITO["vermillion"]])),
+        shape=alt.Shape("band:N", scale=alt.Scale(domain=["inside 95 %", "outside 95 %", "outside 99.8 %"],
+                                                   range=["circle", "triangle-up", "diamond"]), legend=None),
+        tooltip=["instrument_id:N", "region:N", "technology:N", "n_checks:Q",
+                 alt.Tooltip("mean_pct:Q", format=".2f"), alt.Tooltip("z:Q", format=".2f")]))
+    return alt.layer(*layers).properties(width=WIDTH, height=380,
+                                         title="Units' mean relative error by number of checks")
+
+
+def lot_effects_chart(effects: pd.DataFrame) -> alt.LayerChart:
+    """Each lot's effect (%) with its interval, coloured and shaped by verdict."""
+    y = alt.Y("lot_id:N", title="lot", sort=alt.SortField("effect_pct"))
+    base = alt.Chart(effects).encode(y=y)
+    colour = alt.Color("verdict:N", scale=_scale(VERDICT_COLOURS), title="verdict")
+    return alt.layer(
+        base.mark_rule(strokeWidth=2).encode(x=alt.X("ci_low_pct:Q", title="lot effect (%)"), x2="ci_high_pct:Q",
+                                             color=colour),
+        base.mark_point(filled=True, size=60).encode(
+            x="effect_pct:Q", color=colour,
+            shape=alt.Shape("verdict:N", scale=alt.Scale(domain=["agrees", "watch", "off"],
+                                                          range=["circle", "triangle-up", "diamond"])),
+            tooltip=["lot_id:N", "standard_kind:N", alt.Tooltip("effect_pct:Q", format=".2f"),
+                     alt.Tooltip("ci_low_pct:Q", format=".2f"), alt.Tooltip("ci_high_pct:Q", format=".2f"),
+                     "verdict:N", "n_units:Q", "n_checks:Q"]),
+        alt.Chart(pd.DataFrame({"x": [0.0]})).mark_rule(color=OKABE_ITO["grey"]).encode(x="x:Q"),
+    ).properties(width=WIDTH, height=alt.Step(18), title="Lot effects with 95 % intervals")
+
+
+def quarantine_chart(reasons: pd.DataFrame) -> alt.Chart:
+    """Quarantined rows by reason."""
+    return alt.Chart(reasons).mark_bar(color=OKABE_ITO["vermillion"]).encode(
+        y=alt.Y("reason:N", sort="-x", title="reason"), x=alt.X("n_rows:Q", title="rows quarantined"),
+        tooltip=["reason:N", "n_rows:Q", "n_problems:Q", "n_files:Q"],
+    ).properties(width=WIDTH, height=alt.Step(22), title="Quarantined rows by reason")
+
+
+def event_strip(events: pd.DataFrame) -> alt.Chart:
+    """Service events and lot changes on a time axis, one row per kind."""
+    return alt.Chart(events).mark_tick(thickness=2, size=14).encode(
+        x=alt.X("event_at:T", title="time (UTC)"), y=alt.Y("event_type:N", title=None),
+        color=alt.Color("event_type:N", scale=_scale(EVENT_COLOURS, events["event_type"]), legend=None),
+        tooltip=["event_at:T", "event_type:N", "notes:N"],
+    ).properties(width=WIDTH, height=alt.Step(18), title="Service events and lot changes")

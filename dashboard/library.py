@@ -1,0 +1,125 @@
+"""Adapters from the pages to library functions that other parts of breathfleet provide.
+
+Each adapter returns None when the library function is not available (its feature has not
+been installed yet), so the page can say "not computed yet" instead of failing.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import importlib
+import inspect
+import json
+import tempfile
+from pathlib import Path
+
+import pandas as pd
+
+from dashboard import loaders
+
+
+def _function(module: str, name: str):
+    try:
+        return getattr(importlib.import_module(module), name)
+    except (ImportError, AttributeError):
+        return None
+
+
+def cusum_h(baselines: pd.DataFrame | None, level: float) -> float | None:
+    """The CUSUM decision interval h recorded in the latest baseline's parameters at `level`."""
+    if baselines is None or baselines.empty:
+        return None
+    rows = baselines[baselines["level"].round(3) == round(level, 3)]
+    for text in reversed(rows["parameters"].tolist()):
+        try:
+            params = json.loads(text) if isinstance(text, str) else {}
+        except ValueError:
+            continue
+        for key in ("h", "cusum_h"):
+            if key in params:
+                return float(params[key])
+            if isinstance(params.get("cusum"), dict) and key in params["cusum"]:
+                return float(params["cusum"][key])
+    return None
+
+
+def forecast_sentence(forecast: pd.DataFrame, tolerance_pct: float) -> str:
+    """A plain sentence on when the projected bias reaches tolerance, read off the projection."""
+    outside = forecast[forecast["bias_pct"].abs() >= tolerance_pct]
+    near = forecast[(forecast["bias_pct"].abs() + 1.959964 * forecast["se_pct"]) >= tolerance_pct]
+    horizon = int(forecast["day"].max())
+    if not outside.empty:
+        first = outside.iloc[0]
+        return (f"If the present drift continues, the bias reaches the ±{tolerance_pct:g} % tolerance "
+                f"around **{pd.Timestamp(first['at']):%Y-%m-%d}** (day {int(first['day'])}).")
+    if not near.empty:
+        first = near.iloc[0]
+        return (f"The projected bias stays inside ±{tolerance_pct:g} % for {horizon} days, but its 95 % band "
+                f"reaches tolerance from about **{pd.Timestamp(first['at']):%Y-%m-%d}**.")
+    return f"The projected bias and its 95 % band stay inside ±{tolerance_pct:g} % for the next {horizon} days."
+
+
+def uncertainty_budget(instrument_id: str, level: float) -> pd.DataFrame | None:
+    """The unit's uncertainty budget at `level` from pipeline.standards, as a table; None if unavailable."""
+    fn = _function("pipeline.standards.uncertainty", "uncertainty_budget") or \
+        _function("pipeline.standards", "uncertainty_budget")
+    con = loaders.reader_connection()
+    if fn is None or con is None:
+        return None
+    kwargs = {"instrument_id": instrument_id, "level": level}
+    params = inspect.signature(fn).parameters
+    if "settings" in params:
+        kwargs["settings"] = loaders.settings()
+    try:
+        result = fn(con, **{k: v for k, v in kwargs.items() if k in params})
+    except Exception as exc:  # noqa: BLE001 - the page shows the reason instead of a traceback
+        return pd.DataFrame({"component": ["(not available)"], "note": [str(exc)]})
+    if isinstance(result, pd.DataFrame):
+        return result
+    table = getattr(result, "as_frame", None) or getattr(result, "to_frame", None)
+    if callable(table):
+        return table()
+    components = getattr(result, "components", None)
+    if components is not None:
+        return pd.DataFrame([c if isinstance(c, dict) else vars(c) for c in components])
+    return pd.DataFrame([vars(result)]) if hasattr(result, "__dict__") else None
+
+
+def instrument_record(instrument_id: str, start: dt.date | None, end: dt.date | None):
+    """Write the instrument record with pipeline.reports and return (file name, bytes, mime) or None."""
+    fn = _function("pipeline.reports", "write_instrument_record")
+    con = loaders.reader_connection()
+    if fn is None or con is None:
+        return None
+    with tempfile.TemporaryDirectory() as tmp:
+        out = Path(tmp) / f"instrument-record-{instrument_id}.pdf"
+        written = fn(con, loaders.settings(), instrument_id, start, end, out)
+        path = Path(written) if isinstance(written, (str, Path)) else out
+        if not path.exists():
+            produced = sorted(Path(tmp).rglob("*"))
+            path = next((p for p in produced if p.is_file()), None)
+            if path is None:
+                return None
+        mime = {".pdf": "application/pdf", ".html": "text/html", ".md": "text/markdown"}.get(
+            path.suffix, "application/octet-stream")
+        return path.name, path.read_bytes(), mime
+
+
+def digest_preview(week: str):
+    """Write this week's digest with pipeline.digest into a temporary folder and return
+    a list of (file name, text or bytes); None when the digest step is not available."""
+    fn = _function("pipeline.digest", "write_digest")
+    con = loaders.reader_connection()
+    if fn is None or con is None:
+        return None
+    with tempfile.TemporaryDirectory() as tmp:
+        fn(con, loaders.settings(), week, Path(tmp))
+        files = []
+        for path in sorted(Path(tmp).rglob("*")):
+            if path.is_file():
+                data = path.read_bytes()
+                try:
+                    files.append((path.name, data.decode("utf-8")))
+                except UnicodeDecodeError:
+                    files.append((path.name, data))
+        return files

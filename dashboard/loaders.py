@@ -1,0 +1,172 @@
+"""Cached loaders: every query the dashboard runs, read from the published snapshot.
+
+Concurrency: the dashboard never opens the writers' database file while a snapshot exists.
+It opens `<db>.snapshot` read-only through `pipeline.db.connect_reader`. Writers publish a
+new snapshot by an atomic rename, so a reader either holds the old file (its inode stays
+valid) or opens the new one; it never meets a lock or a half-written file. Every cache here
+is keyed on the snapshot's path and modification time (`data_token`), so when a writer
+publishes, the next rerun opens a fresh connection and every cached query runs again.
+
+Queries are the files sql/queries/dashboard_*.sql. Each names the tables it needs on a
+`-- requires:` line; when one is missing (its feature has not run yet) the loader returns
+None and the page says "not computed yet" instead of failing.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import duckdb
+import pandas as pd
+import streamlit as st
+
+from pipeline import __version__
+from pipeline.db import connect_reader, snapshot_path, sql_text
+from pipeline.settings import Settings, load_settings
+
+DB_ENV = "BREATHFLEET_DB"
+SETTINGS_ENV = "BREATHFLEET_SETTINGS"
+MAX_POINTS = 3000  # the most rows any chart ships to the browser
+SOFTWARE_VERSION = __version__
+_REQUIRES = re.compile(r"^--\s*requires:\s*(.+)$", re.MULTILINE)
+
+
+@dataclass(frozen=True)
+class DataToken:
+    """Which file the dashboard reads and its modification time; the key of every cache."""
+
+    path: str
+    mtime_ns: int
+
+
+def database_path() -> Path | None:
+    """The database named by BREATHFLEET_DB (set by `breathfleet dashboard --db`)."""
+    value = os.environ.get(DB_ENV)
+    return Path(value) if value else None
+
+
+def data_token(path: Path | None = None) -> DataToken | None:
+    """The snapshot (or, before the first publish, the main file) and its mtime; None if absent."""
+    path = path or database_path()
+    if path is None:
+        return None
+    for candidate in (snapshot_path(path), path):
+        try:
+            return DataToken(str(path), candidate.stat().st_mtime_ns)
+        except FileNotFoundError:
+            continue
+    return None
+
+
+@st.cache_resource(max_entries=2, show_spinner=False)
+def _connection(token: DataToken) -> duckdb.DuckDBPyConnection:
+    # A new token (new snapshot) gives a new connection; the old one is evicted and its
+    # file handle released when the last rerun using it finishes.
+    return connect_reader(token.path)
+
+
+@st.cache_data(max_entries=4, show_spinner=False)
+def _tables(token: DataToken) -> frozenset[str]:
+    cur = _connection(token).cursor()
+    try:
+        rows = cur.execute("SELECT table_name FROM information_schema.tables").fetchall()
+    finally:
+        cur.close()
+    return frozenset(r[0] for r in rows)
+
+
+def required_tables(name: str) -> tuple[str, ...]:
+    """Tables and views a named query needs, from its `-- requires:` header line."""
+    match = _REQUIRES.search(sql_text(f"queries/{name}"))
+    return tuple(t.strip() for t in match.group(1).split(",")) if match else ()
+
+
+@st.cache_data(max_entries=512, show_spinner=False, ttl=3600)
+def _query(token: DataToken, name: str, params: tuple[tuple[str, Any], ...]) -> pd.DataFrame | None:
+    if not set(required_tables(name)) <= _tables(token):
+        return None
+    cur = _connection(token).cursor()  # one cursor per query: sessions run in threads
+    try:
+        return cur.execute(sql_text(f"queries/{name}"), dict(params) or None).df()
+    finally:
+        cur.close()
+
+
+def load(name: str, **params: Any) -> pd.DataFrame | None:
+    """Run sql/queries/<name>.sql on the current snapshot, cached until the next publish.
+
+    Returns:
+        The rows, or None when a table the query needs does not exist yet (or no database).
+    """
+    token = data_token()
+    if token is None:
+        return None
+    return _query(token, name, tuple(sorted(params.items())))
+
+
+def has_tables(*names: str) -> bool:
+    """Whether every named table or view exists in the current snapshot."""
+    token = data_token()
+    return token is not None and set(names) <= _tables(token)
+
+
+def reader_connection() -> duckdb.DuckDBPyConnection | None:
+    """A cursor on the current snapshot, for library calls (digest, instrument record)."""
+    token = data_token()
+    return None if token is None else _connection(token).cursor()
+
+
+@st.cache_resource(show_spinner=False)
+def _settings(path: str | None) -> Settings:
+    return load_settings(path)
+
+
+def settings() -> Settings:
+    """Program settings from BREATHFLEET_SETTINGS, or the defaults."""
+    return _settings(os.environ.get(SETTINGS_ENV))
+
+
+def tolerance_pct() -> float:
+    """The default rule's relative tolerance in percent (the band drawn on relative-error charts)."""
+    rules = settings().standards.tolerance_rules
+    default = next((r for r in rules if not r.check_type and not r.level), rules[-1])
+    return default.relative * 100
+
+
+def data_range() -> dict[str, Any] | None:
+    """First and last check, counts of checks and units; None when no checks table or no rows."""
+    df = load("dashboard_data_range")
+    if df is None or df.empty or pd.isna(df.loc[0, "first_check_at"]):
+        return None
+    return df.iloc[0].to_dict()
+
+
+UNIT_STATES = ("in control", "signal", "out of tolerance", "not charted")
+
+
+def unit_states(signal_days: int = 7) -> pd.DataFrame | None:
+    """One row per unit with its state: out of tolerance (latest check at a level failed),
+    signal (a control-chart signal in the last `signal_days` days), in control, or not charted
+    (no chart results yet). None when the checks have not been stored yet."""
+    tol = load("dashboard_unit_tolerance")
+    if tol is None:
+        return None
+    sig = load("dashboard_unit_signal_counts", days=signal_days)
+    charted = sig is not None
+    sig = sig if charted else pd.DataFrame(columns=["instrument_id", "recent_signals", "last_signal_at"])
+    out = tol.merge(sig, on="instrument_id", how="left")
+    out["recent_signals"] = out["recent_signals"].fillna(0).astype(int)
+    out["state"] = "in control" if charted else "not charted"
+    out.loc[out["recent_signals"] > 0, "state"] = "signal"
+    out.loc[out["out_of_tolerance"].fillna(False).astype(bool), "state"] = "out of tolerance"
+    return out
+
+
+def state_counts(states: pd.DataFrame, by: list[str]) -> pd.DataFrame:
+    """Counts of units per state, grouped by `by` (e.g. region, or region and site)."""
+    counts = states.groupby(by + ["state"], dropna=False).size().rename("units").reset_index()
+    return counts

@@ -1,0 +1,36 @@
+"""Comparison: a funnel plot of units' mean relative error against their number of checks, so a
+unit with few checks is judged against the wider limits it deserves.
+
+Source: Spiegelhalter DJ (2005), Funnel plots for comparing institutional performance,
+Statistics in Medicine 24(8):1185-1202.
+"""
+
+import streamlit as st
+
+from dashboard import figures, frame, loaders
+
+frame.header("Comparison", "Which units differ from the fleet by more than their number of checks explains?")
+levels = loaders.load("dashboard_levels")
+if frame.missing(levels):
+    frame.not_computed("Funnel plot", "Ingest checks first.")
+    st.stop()
+
+c1, c2 = st.columns(2)
+level = c1.selectbox("Level (g/210L)", levels["level"].tolist(), format_func=lambda v: f"{v:.3f}", key="cmp_level")
+days = c2.select_slider("Window (days of data)", [30, 90, 180, 365, 730], value=90, key="cmp_days")
+units = loaders.load("dashboard_funnel_units", level=level, days=days, max_points=loaders.MAX_POINTS)
+limits = loaders.load("dashboard_funnel_limits", level=level, days=days)
+if frame.missing(units) or frame.missing(limits):
+    frame.not_computed("Funnel plot for this level and window", "Too few checks with an expected value.")
+    st.stop()
+
+n_units = int(limits["n_units"].iloc[0])
+frame.chart(figures.funnel_chart(units, limits), key="funnel")
+note = (f"{n_units:,} units; limits are the fleet mean ± 1.96 and ± 3.09 standard errors "
+        "(pooled within-unit standard deviation / √n), after Spiegelhalter (2005).")
+if n_units > len(units):
+    note += f" The {len(units):,} most extreme units are drawn; the others lie closer to the mean."
+st.caption(note)
+outside = units[units["z"].abs() > 1.959964]
+st.subheader(f"Units outside the 95 % limits ({len(outside):,})")
+st.dataframe(outside, hide_index=True, width="stretch")

@@ -1,0 +1,58 @@
+"""Fleet overview: how many units are in and out of control, this week's signals, the state of
+every unit by region and site, and the trend of the fleet-wide relative error."""
+
+import streamlit as st
+
+from dashboard import figures, frame, loaders
+
+frame.header("Fleet overview", "What needs attention this week, and where?")
+states = loaders.unit_states(signal_days=7)
+if frame.missing(states):
+    frame.not_computed("Unit states", "Ingest instruments and checks first (`breathfleet ingest`).")
+    st.stop()
+
+counts = states["state"].value_counts()
+cols = st.columns(4)
+cols[0].metric("Units", f"{len(states):,}")
+cols[1].metric("In control", f"{int(counts.get('in control', 0)):,}")
+cols[2].metric("Signal in the last 7 days", f"{int(counts.get('signal', 0)):,}")
+cols[3].metric("Out of tolerance (latest check)", f"{int(counts.get('out of tolerance', 0)):,}")
+if counts.get("not charted", 0):
+    st.caption(f"{int(counts['not charted']):,} units are not charted yet: control charts have not been computed.")
+
+regions = sorted(states["region"].dropna().unique())
+region = st.selectbox("Region", ["All regions", *regions], key="fleet_region")
+shown = states if region == "All regions" else states[states["region"] == region]
+
+left, right = st.columns([2, 3])
+with left:
+    by_region = loaders.state_counts(shown, ["region"])
+    frame.chart(figures.state_by_region(by_region), key="state_by_region")
+with right:
+    if region != "All regions" and len(shown) <= loaders.MAX_POINTS:
+        frame.chart(figures.unit_tiles(shown[["instrument_id", "site_id", "state", "recent_signals",
+                                              "last_check_at"]]), key="unit_tiles")
+    else:
+        st.caption("Choose a region to see every unit by site.")
+by_site = loaders.state_counts(shown, ["region", "site_id"]).pivot_table(
+    index=["region", "site_id"], columns="state", values="units", fill_value=0).reset_index()
+frame.table_alternative(by_site, "Units by site and state (table)")
+
+st.subheader("Signals in the last 7 days of data")
+signals = loaders.load("dashboard_signals_recent", days=7)
+if signals is None:
+    frame.not_computed("Control-chart signals", "Run the chart analysis (`breathfleet analyse`).")
+elif signals.empty:
+    st.write("No control-chart signals in the last 7 days of data.")
+else:
+    if region != "All regions":
+        signals = signals[signals["region"] == region]
+    st.dataframe(signals, hide_index=True, width="stretch")
+
+st.subheader("Fleet-wide relative error")
+trend = loaders.load("dashboard_fleet_trend")
+if frame.missing(trend):
+    frame.not_computed("Fleet trend", "No checks with an expected value yet.")
+else:
+    frame.chart(figures.fleet_trend(trend, loaders.tolerance_pct()), key="fleet_trend")
+    frame.table_alternative(trend)

@@ -1,0 +1,60 @@
+"""Service queue: the ranked units due for service, why, and a way into each one."""
+
+import json
+
+import pandas as pd
+import streamlit as st
+
+from dashboard import frame, loaders
+
+
+def _reasons(value) -> str:
+    try:
+        items = json.loads(value) if isinstance(value, str) else list(value)
+    except (TypeError, ValueError):
+        return str(value)
+    return " ".join(str(x) for x in items)
+
+
+frame.header("Service queue", "Which units to visit first, and why?")
+queue = loaders.load("dashboard_queue")
+if frame.missing(queue):
+    frame.not_computed("Service queue", "Build it with the queue step (`breathfleet queue`).")
+    st.stop()
+
+queue = queue.assign(reasons=queue["reasons"].map(_reasons))
+cols = st.columns(3)
+filters = {}
+for col, name, label in zip(cols, ["region", "technology", "site_id"], ["Region", "Technology", "Site"]):
+    options = sorted(queue[name].dropna().astype(str).unique())
+    filters[name] = col.multiselect(label, options, key=f"queue_{name}")
+shown = queue
+for name, chosen in filters.items():
+    if chosen:
+        shown = shown[shown[name].astype(str).isin(chosen)]
+
+computed = pd.Timestamp(queue["computed_at"].max())
+st.caption(f"Queue computed at {computed:%Y-%m-%d %H:%M} UTC · {len(shown):,} of {len(queue):,} units shown. "
+           "Select a row to open the unit.")
+table = shown[["rank", "instrument_id", "region", "site_id", "technology", "p_breach", "rank_low",
+               "rank_high", "reasons"]]
+event = st.dataframe(
+    table, hide_index=True, width="stretch", on_select="rerun", selection_mode="single-row",
+    key="queue_table",
+    column_config={
+        "p_breach": st.column_config.ProgressColumn("P(breach)", format="%.2f", min_value=0.0, max_value=1.0),
+        "rank_low": st.column_config.NumberColumn("rank from"),
+        "rank_high": st.column_config.NumberColumn("rank to"),
+        "reasons": st.column_config.TextColumn("reasons", width="large"),
+    })
+rows = event.selection.rows if event is not None else []
+if rows:
+    st.switch_page("views/unit.py", query_params={"unit": str(table.iloc[rows[0]]["instrument_id"])})
+
+left, right = st.columns([3, 1])
+if not shown.empty:
+    chosen = left.selectbox("Open a unit", shown["instrument_id"].tolist(), key="queue_open_unit")
+    if right.button("Open unit page", key="queue_open_button"):
+        st.switch_page("views/unit.py", query_params={"unit": str(chosen)})
+st.download_button("Download the queue as CSV", shown.to_csv(index=False).encode("utf-8"),
+                   file_name=f"service-queue-{computed:%Y%m%d}.csv", mime="text/csv", key="queue_csv")

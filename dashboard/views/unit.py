@@ -1,0 +1,116 @@
+"""Unit: one instrument's control charts with its events and signals, the model's bias and
+drift, the forecast to tolerance, the uncertainty budget and its instrument record."""
+
+import json
+
+import pandas as pd
+import streamlit as st
+
+from dashboard import figures, frame, library, loaders
+
+frame.header("Unit", "Is this unit drifting, since when, and is it the unit or its lot?")
+units = loaders.load("dashboard_unit_list")
+if frame.missing(units):
+    frame.not_computed("Instruments", "Ingest the instruments reference file first.")
+    st.stop()
+
+ids = units["instrument_id"].tolist()
+wanted = st.query_params.get("unit")
+index = ids.index(wanted) if wanted in ids else 0
+unit_id = st.selectbox("Unit", ids, index=index, key=f"unit_pick_{wanted}")
+if unit_id != wanted:
+    st.query_params["unit"] = unit_id
+info = units[units["instrument_id"] == unit_id].iloc[0]
+st.markdown(f"**{unit_id}** · {info['technology']} {info['model'] or ''} · site {info['site_id']} · "
+            f"region {info['region']} · in service since {info['in_service_on'] or 'unknown'}")
+
+levels = loaders.load("dashboard_unit_levels", instrument_id=unit_id)
+if frame.missing(levels):
+    st.info("This unit has no checks stored.")
+    st.stop()
+level = st.selectbox("Level (g/210L)", levels["level"].tolist(),
+                     format_func=lambda v: f"{v:.3f} ({int(levels.loc[levels['level'] == v, 'n_checks'].iloc[0]):,} checks)",
+                     key="unit_level")
+
+events = loaders.load("dashboard_unit_events", instrument_id=unit_id)
+signals = loaders.load("dashboard_unit_signals", instrument_id=unit_id)
+level_signals = None if signals is None else signals[signals["level"].round(3) == round(level, 3)]
+checks = loaders.load("dashboard_unit_checks", instrument_id=unit_id, level=level, max_points=loaders.MAX_POINTS)
+if len(checks) == loaders.MAX_POINTS:
+    st.caption(f"Showing the latest {loaders.MAX_POINTS:,} checks at this level.")
+if not checks.empty:
+    events_in = None if events is None else events[events["event_at"] >= checks["measured_at"].min()]
+    frame.chart(figures.relative_error_chart(checks, loaders.tolerance_pct(), events_in, level_signals),
+                key="unit_relative_error")
+
+st.subheader("Control charts")
+points = loaders.load("dashboard_unit_points", instrument_id=unit_id, level=level, max_points=loaders.MAX_POINTS)
+if frame.missing(points):
+    frame.not_computed("Control charts for this unit and level", "Run the chart analysis (`breathfleet analyse`).")
+else:
+    events_in = None if events is None else events[events["event_at"] >= points["measured_at"].min()]
+    baselines = loaders.load("dashboard_unit_baselines", instrument_id=unit_id)
+    h = library.cusum_h(baselines, level)
+    tabs = st.tabs(["Individuals / moving range", "CUSUM", "EWMA"])
+    with tabs[0]:
+        frame.chart(figures.individuals_chart(points, events_in, level_signals), key="unit_individuals")
+        frame.chart(figures.moving_range_chart(points, events_in, level_signals), key="unit_mr")
+    with tabs[1]:
+        frame.chart(figures.cusum_chart(points, h, events_in, level_signals), key="unit_cusum")
+    with tabs[2]:
+        frame.chart(figures.ewma_chart(points, events_in, level_signals), key="unit_ewma")
+    if baselines is not None and not baselines.empty:
+        frame.table_alternative(baselines, "Frozen baselines (center, sigma, how they were set)")
+
+if events is not None and not events.empty:
+    frame.chart(figures.event_strip(events), key="unit_events")
+    frame.table_alternative(events, "Events as a table")
+
+st.subheader("Signals and their impact windows")
+if signals is None:
+    frame.not_computed("Signals", "Run the chart analysis (`breathfleet analyse`).")
+elif signals.empty:
+    st.write("No control-chart signals for this unit.")
+else:
+    st.dataframe(signals, hide_index=True, width="stretch")
+
+st.subheader("Bias and drift (fleet model)")
+estimates = loaders.load("dashboard_unit_estimates", instrument_id=unit_id)
+if frame.missing(estimates):
+    frame.not_computed("Model estimates", "Fit the fleet model (`breathfleet model`).")
+else:
+    last = estimates.iloc[-1]
+    c = st.columns(3)
+    c[0].metric("Bias at last check", f"{last['bias_pct']:+.2f} %",
+                help=f"95 % interval {last['bias_ci_low_pct']:+.2f} to {last['bias_ci_high_pct']:+.2f} %")
+    c[0].caption(f"95 % interval {last['bias_ci_low_pct']:+.2f} to {last['bias_ci_high_pct']:+.2f} %")
+    c[1].metric("Drift per 30 days", f"{last['drift_pct_per_30d']:+.2f} %")
+    c[1].caption(f"95 % interval {last['drift_ci_low']:+.2f} to {last['drift_ci_high']:+.2f} %")
+    c[2].metric("Checks in the fit", f"{int(last['n_checks']):,}")
+    c[2].caption(f"fitted {pd.Timestamp(last['fitted_at']):%Y-%m-%d}; converged: {bool(last['converged'])}")
+    frame.table_alternative(estimates, "Estimates per baseline period")
+    forecast = loaders.load("dashboard_unit_forecast", instrument_id=unit_id,
+                            horizon_days=loaders.settings().queue.calibration_interval_days)
+    if not frame.missing(forecast):
+        st.markdown(library.forecast_sentence(forecast, loaders.tolerance_pct()))
+        frame.chart(figures.forecast_chart(forecast, loaders.tolerance_pct()), key="unit_forecast")
+
+st.subheader("Uncertainty budget")
+budget = library.uncertainty_budget(unit_id, level)
+if frame.missing(budget):
+    frame.not_computed("Uncertainty budget", "It appears once the reference-standards step provides it.")
+else:
+    st.dataframe(budget, hide_index=True, width="stretch")
+
+st.subheader("Instrument record")
+start = st.date_input("From", value=pd.Timestamp(checks["measured_at"].min()).date() if not checks.empty else None,
+                      key="record_start")
+end = st.date_input("To", value=pd.Timestamp(checks["measured_at"].max()).date() if not checks.empty else None,
+                    key="record_end")
+if st.button("Prepare the instrument record", key="record_button"):
+    record = library.instrument_record(unit_id, start, end)
+    if record is None:
+        frame.not_computed("Instrument record", "The reports step has not been installed yet.")
+    else:
+        name, data, mime = record
+        st.download_button("Download the instrument record", data, file_name=name, mime=mime, key="record_download")
