@@ -197,3 +197,14 @@ def test_baseline_and_solution_context(db):
     df = db.execute("SELECT check_id, baseline_period, checks_since_solution_change FROM check_results "
                     "ORDER BY check_id").fetchall()
     assert df == [(1, 0, 0), (2, 0, 1), (3, 1, 2), (4, 1, 0), (5, 1, 1)]
+
+
+def test_lot_flag_summary(db):
+    from pipeline.standards.lots import summarise_lot_flags
+
+    insert_check(db, 1, "FC-1", "WB-OLD", 0.080, temp=34.0, at=datetime(2026, 3, 1, 0, 30))
+    insert_check(db, 2, "FC-1", "WB-OLD", 0.080, temp=34.0, at=datetime(2026, 2, 1))
+    insert_check(db, 3, "FC-1", "TYPO-1", 0.080, temp=34.0)
+    df = summarise_lot_flags(db).set_index("lot_id")
+    assert df.loc["WB-OLD", "n_checks"] == 2 and df.loc["WB-OLD", "n_expired"] == 1
+    assert not df.loc["TYPO-1", "registered"] and df.loc["TYPO-1", "n_wrong_kind"] == 1

@@ -13,6 +13,10 @@ from pipeline.db import connect_reader
 from pipeline.standards.uncertainty import compute_uncertainty_budget
 
 
+def _signed(value: float, digits: int) -> str:
+    return f"{round(value, digits) + 0.0:+.{digits}f}"  # + 0.0 turns -0.0 into 0.0
+
+
 def _jsonable(value):
     if isinstance(value, float) and not math.isfinite(value):
         return None if math.isnan(value) else "inf"
@@ -42,8 +46,9 @@ def command(settings, db_path: str, instrument_id: str, as_json: bool) -> None:
         click.echo("")
         click.echo(f"level {lv.level:.3f} g/210L  {lv.standard_kind}  correction {lv.correction_method}  "
                    f"n = {lv.n_checks}  lots {', '.join(lv.lots)}")
-        click.echo(f"  bias {lv.bias:+.5f} ({100 * lv.bias_relative:+.2f} %)  u(bias) {lv.bias_standard_uncertainty:.5f}  "
-                   f"truncation bias {lv.truncation_bias:+.4f}  bias without truncation {lv.bias_excluding_truncation:+.5f}")
+        click.echo(f"  bias {_signed(lv.bias, 5)} ({_signed(100 * lv.bias_relative, 2)} %)  u(bias) {lv.bias_standard_uncertainty:.5f}  "
+                   f"truncation bias {_signed(lv.truncation_bias, 4)}  "
+                   f"bias without truncation {_signed(lv.bias_excluding_truncation, 5)}")
         click.echo(f"  {'component':<22}{'type':<6}{'distribution':<14}{'u(x)':>10}{'c':>10}{'|c| u':>10}{'dof':>7}")
         for c in lv.components:
             dof = "inf" if math.isinf(c.degrees_of_freedom) else f"{c.degrees_of_freedom:.0f}"
