@@ -208,3 +208,12 @@ def test_lot_flag_summary(db):
     df = summarise_lot_flags(db).set_index("lot_id")
     assert df.loc["WB-OLD", "n_checks"] == 2 and df.loc["WB-OLD", "n_expired"] == 1
     assert not df.loc["TYPO-1", "registered"] and df.loc["TYPO-1", "n_wrong_kind"] == 1
+
+
+def test_sync_inside_a_callers_transaction(db):
+    db.execute("BEGIN TRANSACTION")
+    sync_standards_settings(db, StandardsSettings(simulator_window_c=0.3), own_transaction=False)
+    assert db.execute("SELECT simulator_window_c FROM standards_parameters").fetchone()[0] == 0.3
+    db.execute("ROLLBACK")
+    # The caller's rollback undoes the sync too: the fixture's window of 0.2 C stays.
+    assert db.execute("SELECT simulator_window_c FROM standards_parameters").fetchone()[0] == 0.2

@@ -42,7 +42,8 @@ def validate_tolerance_rules(rules: tuple[ToleranceRule, ...]) -> None:
                          field="standards.tolerance_rules")
 
 
-def sync_standards_settings(con: duckdb.DuckDBPyConnection, settings: Settings | StandardsSettings) -> None:
+def sync_standards_settings(con: duckdb.DuckDBPyConnection, settings: Settings | StandardsSettings, *,
+                            own_transaction: bool = True) -> None:
     """Write the standards settings into standards_parameters, standards_compensating and tolerance_rules.
 
     Idempotent; runs in one transaction. Call it before reading `check_results` in any writer.
@@ -50,6 +51,8 @@ def sync_standards_settings(con: duckdb.DuckDBPyConnection, settings: Settings |
     Parameters:
         con: a writable connection with the schema migrated.
         settings: the whole Settings or its `standards` section.
+        own_transaction: False when the caller has already begun a transaction (DuckDB has no
+            nested transactions); the caller then commits or rolls back the writes.
 
     Raises:
         InputError: the tolerance rule set is ambiguous or has no default (see validate_tolerance_rules).
@@ -57,30 +60,37 @@ def sync_standards_settings(con: duckdb.DuckDBPyConnection, settings: Settings |
     digest = settings.digest() if isinstance(settings, Settings) else None
     std = settings.standards if isinstance(settings, Settings) else settings
     validate_tolerance_rules(std.tolerance_rules)
+    if not own_transaction:  # the caller's transaction holds the writes; it commits or rolls back
+        _write(con, std, digest)
+        return
     con.execute("BEGIN TRANSACTION")
     try:
-        con.execute(
-            "UPDATE standards_parameters SET simulator_nominal_c = $nominal, simulator_window_c = $window, "
-            "correct_wet_bath_temperature = $wet, correct_dry_gas_pressure = $dry, "
-            "wet_bath_temperature_coefficient = $coef, reference_pressure_kpa = $pref, "
-            "settings_digest = $digest, synced_at = current_timestamp WHERE parameters_id = 1",
-            {"nominal": std.simulator_nominal_c, "window": std.simulator_window_c,
-             "wet": std.correct_wet_bath_temperature, "dry": std.correct_dry_gas_pressure,
-             "coef": std.wet_bath_temperature_coefficient, "pref": std.reference_pressure_kpa,
-             "digest": digest})
-        con.execute("DELETE FROM standards_compensating")
-        for applies_to, names in (("technology", std.pressure_compensating_technologies),
-                                  ("model", std.pressure_compensating_models)):
-            for name in sorted(set(names)):
-                con.execute("INSERT INTO standards_compensating VALUES ($applies_to, $name)",
-                            {"applies_to": applies_to, "name": name})
-        con.execute("DELETE FROM tolerance_rules")
-        for rule_id, rule in enumerate(std.tolerance_rules):
-            con.execute("INSERT INTO tolerance_rules VALUES ($rule_id, $check_type, $level_milli, $absolute, $relative)",
-                        {"rule_id": rule_id, "check_type": rule.check_type,
-                         "level_milli": level_milli(rule.level), "absolute": rule.absolute,
-                         "relative": rule.relative})
+        _write(con, std, digest)
         con.execute("COMMIT")
     except BaseException:
         con.execute("ROLLBACK")
         raise
+
+
+def _write(con: duckdb.DuckDBPyConnection, std: StandardsSettings, digest: str | None) -> None:
+    con.execute(
+        "UPDATE standards_parameters SET simulator_nominal_c = $nominal, simulator_window_c = $window, "
+        "correct_wet_bath_temperature = $wet, correct_dry_gas_pressure = $dry, "
+        "wet_bath_temperature_coefficient = $coef, reference_pressure_kpa = $pref, "
+        "settings_digest = $digest, synced_at = current_timestamp WHERE parameters_id = 1",
+        {"nominal": std.simulator_nominal_c, "window": std.simulator_window_c,
+         "wet": std.correct_wet_bath_temperature, "dry": std.correct_dry_gas_pressure,
+         "coef": std.wet_bath_temperature_coefficient, "pref": std.reference_pressure_kpa,
+         "digest": digest})
+    con.execute("DELETE FROM standards_compensating")
+    for applies_to, names in (("technology", std.pressure_compensating_technologies),
+                              ("model", std.pressure_compensating_models)):
+        for name in sorted(set(names)):
+            con.execute("INSERT INTO standards_compensating VALUES ($applies_to, $name)",
+                        {"applies_to": applies_to, "name": name})
+    con.execute("DELETE FROM tolerance_rules")
+    for rule_id, rule in enumerate(std.tolerance_rules):
+        con.execute("INSERT INTO tolerance_rules VALUES ($rule_id, $check_type, $level_milli, $absolute, $relative)",
+                    {"rule_id": rule_id, "check_type": rule.check_type,
+                     "level_milli": level_milli(rule.level), "absolute": rule.absolute,
+                     "relative": rule.relative})
