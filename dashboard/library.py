@@ -6,16 +6,18 @@ been installed yet), so the page can say "not computed yet" instead of failing.
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 import importlib
-import inspect
 import json
 import tempfile
 from pathlib import Path
 
 import pandas as pd
+import streamlit as st
 
 from dashboard import loaders
+from pipeline.errors import InputError
 
 
 def _function(module: str, name: str):
@@ -59,39 +61,46 @@ def forecast_sentence(forecast: pd.DataFrame, tolerance_pct: float) -> str:
     return f"The projected bias and its 95 % band stay inside ±{tolerance_pct:g} % for the next {horizon} days."
 
 
-def uncertainty_budget(instrument_id: str, level: float) -> pd.DataFrame | None:
-    """The unit's uncertainty budget at `level` from pipeline.standards, as a table; None if unavailable."""
-    fn = _function("pipeline.standards.uncertainty", "uncertainty_budget") or \
-        _function("pipeline.standards", "uncertainty_budget")
-    con = loaders.reader_connection()
-    if fn is None or con is None:
+@st.cache_data(max_entries=64, show_spinner=False)
+def _budget(token: loaders.DataToken, instrument_id: str, level: float):
+    fn = _function("pipeline.standards.uncertainty", "compute_uncertainty_budget")
+    if fn is None:
         return None
-    kwargs = {"instrument_id": instrument_id, "level": level}
-    params = inspect.signature(fn).parameters
-    if "settings" in params:
-        kwargs["settings"] = loaders.settings()
+    with loaders.reader_connection() as con:
+        budget = fn(con, loaders.settings(), instrument_id)
+    match = [lv for lv in budget.levels if round(lv.level, 3) == round(level, 3)]
+    if not match:
+        return {"summary": None, "components": None, "warnings": list(budget.warnings),
+                "baseline_period": budget.baseline_period}
+    lv = match[0]
+    components = pd.DataFrame([dataclasses.asdict(c) for c in lv.components])
+    summary = {"n_checks": lv.n_checks, "bias_pct": 100 * lv.bias_relative,
+               "combined_standard_uncertainty": lv.combined_standard_uncertainty,
+               "coverage_factor": lv.coverage_factor, "expanded_uncertainty": lv.expanded_uncertainty,
+               "relative_expanded_pct": 100 * lv.relative_expanded_uncertainty,
+               "first_check_at": lv.first_check_at, "last_check_at": lv.last_check_at}
+    return {"summary": summary, "components": components, "warnings": list(lv.warnings) + list(budget.warnings),
+            "baseline_period": budget.baseline_period}
+
+
+def uncertainty_budget(instrument_id: str, level: float) -> dict | None:
+    """The unit's GUM uncertainty budget at `level` (current baseline period) from
+    pipeline.standards.uncertainty: summary, components table and warnings; None if unavailable."""
+    token = loaders.data_token()
+    if token is None or not loaders.has_tables("checks", "check_results"):
+        return None
     try:
-        result = fn(con, **{k: v for k, v in kwargs.items() if k in params})
-    except Exception as exc:  # noqa: BLE001 - the page shows the reason instead of a traceback
-        return pd.DataFrame({"component": ["(not available)"], "note": [str(exc)]})
-    if isinstance(result, pd.DataFrame):
-        return result
-    table = getattr(result, "as_frame", None) or getattr(result, "to_frame", None)
-    if callable(table):
-        return table()
-    components = getattr(result, "components", None)
-    if components is not None:
-        return pd.DataFrame([c if isinstance(c, dict) else vars(c) for c in components])
-    return pd.DataFrame([vars(result)]) if hasattr(result, "__dict__") else None
+        return _budget(token, instrument_id, float(level))
+    except InputError as exc:
+        return {"summary": None, "components": None, "warnings": [str(exc)], "baseline_period": None}
 
 
 def instrument_record(instrument_id: str, start: dt.date | None, end: dt.date | None):
     """Write the instrument record with pipeline.reports and return (file name, bytes, mime) or None."""
     fn = _function("pipeline.reports", "write_instrument_record")
-    con = loaders.reader_connection()
-    if fn is None or con is None:
+    if fn is None or loaders.data_token() is None:
         return None
-    with tempfile.TemporaryDirectory() as tmp:
+    with tempfile.TemporaryDirectory() as tmp, loaders.reader_connection() as con:
         out = Path(tmp) / f"instrument-record-{instrument_id}.pdf"
         written = fn(con, loaders.settings(), instrument_id, start, end, out)
         path = Path(written) if isinstance(written, (str, Path)) else out
@@ -109,10 +118,9 @@ def digest_preview(week: str):
     """Write this week's digest with pipeline.digest into a temporary folder and return
     a list of (file name, text or bytes); None when the digest step is not available."""
     fn = _function("pipeline.digest", "write_digest")
-    con = loaders.reader_connection()
-    if fn is None or con is None:
+    if fn is None or loaders.data_token() is None:
         return None
-    with tempfile.TemporaryDirectory() as tmp:
+    with tempfile.TemporaryDirectory() as tmp, loaders.reader_connection() as con:
         fn(con, loaders.settings(), week, Path(tmp))
         files = []
         for path in sorted(Path(tmp).rglob("*")):

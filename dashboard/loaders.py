@@ -5,7 +5,8 @@ It opens `<db>.snapshot` read-only through `pipeline.db.connect_reader`. Writers
 new snapshot by an atomic rename, so a reader either holds the old file (its inode stays
 valid) or opens the new one; it never meets a lock or a half-written file. Every cache here
 is keyed on the snapshot's path and modification time (`data_token`), so when a writer
-publishes, the next rerun opens a fresh connection and every cached query runs again.
+publishes, the next rerun reopens the snapshot (see SnapshotReader) and every cached
+query runs again; results of the old snapshot age out of the caches.
 
 Queries are the files sql/queries/dashboard_*.sql. Each names the tables it needs on a
 `-- requires:` line; when one is missing (its feature has not run yet) the loader returns
@@ -16,6 +17,9 @@ from __future__ import annotations
 
 import os
 import re
+import threading
+from collections.abc import Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -62,20 +66,63 @@ def data_token(path: Path | None = None) -> DataToken | None:
     return None
 
 
-@st.cache_resource(max_entries=2, show_spinner=False)
-def _connection(token: DataToken) -> duckdb.DuckDBPyConnection:
-    # A new token (new snapshot) gives a new connection; the old one is evicted and its
-    # file handle released when the last rerun using it finishes.
-    return connect_reader(token.path)
+class SnapshotReader:
+    """One read-only connection to the newest snapshot, shared by all sessions of the server.
+
+    DuckDB keeps one database instance per file path in a process: connecting again to
+    `<db>.snapshot` while a connection to the replaced file is still open returns the old
+    instance, i.e. old data. So when a newer snapshot appears the reader waits for queries
+    in flight on the old connection (each holds it for one query), closes it, then opens
+    the new file. Queries never meet a lock, because writers never open the snapshot.
+    """
+
+    def __init__(self) -> None:
+        self._cond = threading.Condition()
+        self._con: duckdb.DuckDBPyConnection | None = None
+        self._token: DataToken | None = None
+        self._active = 0
+
+    @contextmanager
+    def cursor(self, token: DataToken) -> Iterator[duckdb.DuckDBPyConnection]:
+        if not snapshot_path(token.path).exists():
+            # Before the first publish we read the main file itself: hold it only for this
+            # query, so that a writer starting meanwhile is not locked out by the dashboard.
+            con = connect_reader(token.path)
+            try:
+                yield con
+            finally:
+                con.close()
+            return
+        with self._cond:
+            newer = self._token is None or self._token.path != token.path or token.mtime_ns > self._token.mtime_ns
+            if newer:
+                self._cond.wait_for(lambda: self._active == 0, timeout=120)
+                if self._con is not None:
+                    self._con.close()
+                    self._con = None
+                self._con = connect_reader(token.path)
+                self._token = token
+            self._active += 1
+            con = self._con
+        cur = con.cursor()  # one cursor per query: sessions run in threads
+        try:
+            yield cur
+        finally:
+            cur.close()
+            with self._cond:
+                self._active -= 1
+                self._cond.notify_all()
+
+
+@st.cache_resource(show_spinner=False)
+def _reader() -> SnapshotReader:
+    return SnapshotReader()
 
 
 @st.cache_data(max_entries=4, show_spinner=False)
 def _tables(token: DataToken) -> frozenset[str]:
-    cur = _connection(token).cursor()
-    try:
+    with _reader().cursor(token) as cur:
         rows = cur.execute("SELECT table_name FROM information_schema.tables").fetchall()
-    finally:
-        cur.close()
     return frozenset(r[0] for r in rows)
 
 
@@ -89,11 +136,8 @@ def required_tables(name: str) -> tuple[str, ...]:
 def _query(token: DataToken, name: str, params: tuple[tuple[str, Any], ...]) -> pd.DataFrame | None:
     if not set(required_tables(name)) <= _tables(token):
         return None
-    cur = _connection(token).cursor()  # one cursor per query: sessions run in threads
-    try:
+    with _reader().cursor(token) as cur:
         return cur.execute(sql_text(f"queries/{name}"), dict(params) or None).df()
-    finally:
-        cur.close()
 
 
 def load(name: str, **params: Any) -> pd.DataFrame | None:
@@ -114,10 +158,15 @@ def has_tables(*names: str) -> bool:
     return token is not None and set(names) <= _tables(token)
 
 
-def reader_connection() -> duckdb.DuckDBPyConnection | None:
-    """A cursor on the current snapshot, for library calls (digest, instrument record)."""
+@contextmanager
+def reader_connection() -> Iterator[duckdb.DuckDBPyConnection | None]:
+    """A cursor on the current snapshot for a library call (budget, digest, record); None without a database."""
     token = data_token()
-    return None if token is None else _connection(token).cursor()
+    if token is None:
+        yield None
+        return
+    with _reader().cursor(token) as cur:
+        yield cur
 
 
 @st.cache_resource(show_spinner=False)

@@ -167,7 +167,7 @@ def _fill_charts(con, checks: pd.DataFrame, units: pd.DataFrame) -> None:
                           "center": center, "sigma": sigma, "ind_lcl": -3.0, "ind_ucl": 3.0, "mr_ucl": 3.686})
         frames.append(f)
         baselines.append({"baseline_id": len(baselines), "instrument_id": unit, "level": level,
-                          "baseline_period": 0, "version": 1, "frozen_at": g["measured_at"].iloc[19],
+                          "baseline_period": 0, "version": 1, "frozen_at": g["measured_at"].iloc[min(19, len(g) - 1)],
                           "reason": "first 20 checks", "sigma_source": "unit", "center": center, "sigma": sigma,
                           "n_checks": 20, "parameters": json.dumps({"k": 0.5, "h": 4.77, "lambda": 0.2, "L": 2.86}),
                           "software_version": "0.1.0"})

@@ -97,10 +97,22 @@ else:
 
 st.subheader("Uncertainty budget")
 budget = library.uncertainty_budget(unit_id, level)
-if frame.missing(budget):
-    frame.not_computed("Uncertainty budget", "It appears once the reference-standards step provides it.")
+if budget is None:
+    frame.not_computed("Uncertainty budget", "It appears once the reference-standards step is installed.")
+elif budget["summary"] is None:
+    st.info("No uncertainty budget at this level in the current baseline period. " + " ".join(budget["warnings"]))
 else:
-    st.dataframe(budget, hide_index=True, width="stretch")
+    s = budget["summary"]
+    c = st.columns(3)
+    c[0].metric("Expanded uncertainty", f"{s['expanded_uncertainty']:.4f} g/210L",
+                help=f"k = {s['coverage_factor']:g}")
+    c[0].caption(f"{s['relative_expanded_pct']:.2f} % of the expected value, k = {s['coverage_factor']:g}")
+    c[1].metric("Mean bias", f"{s['bias_pct']:+.2f} %")
+    c[2].metric("Checks in the budget", f"{int(s['n_checks']):,}")
+    c[2].caption(f"baseline period {budget['baseline_period']}")
+    st.dataframe(budget["components"], hide_index=True, width="stretch")
+    for w in budget["warnings"]:
+        st.caption(f"Warning: {w}")
 
 st.subheader("Instrument record")
 start = st.date_input("From", value=pd.Timestamp(checks["measured_at"].min()).date() if not checks.empty else None,

@@ -1,0 +1,274 @@
+"""The dashboard's fast layer: every page through streamlit.testing.v1.AppTest, on a populated
+and on an empty database; filters change content; chart content read from the Vega-Lite spec."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+import textwrap
+import time
+from pathlib import Path
+
+import pandas as pd
+import pyarrow as pa
+import pytest
+from streamlit.testing.v1 import AppTest
+
+from dashboard import figures
+from pipeline.cli.dashboard import dashboard_environment, streamlit_command
+from tests.dashboard_fixture import build_empty_db, build_fleet_db
+
+APP = str(Path(__file__).resolve().parent.parent / "dashboard" / "app.py")
+PAGES = ["fleet", "queue", "unit", "comparison", "lots", "data_quality", "digest"]
+MAX_POINTS = 3000
+
+
+@pytest.fixture(scope="module")
+def fleet_db(tmp_path_factory) -> Path:
+    return build_fleet_db(tmp_path_factory.mktemp("fleet") / "fleet.duckdb")
+
+
+@pytest.fixture(scope="module")
+def empty_db(tmp_path_factory) -> Path:
+    return build_empty_db(tmp_path_factory.mktemp("empty") / "empty.duckdb")
+
+
+def run_page(monkeypatch, db: Path, page: str, query: dict | None = None) -> AppTest:
+    monkeypatch.setenv("BREATHFLEET_DB", str(db))
+    at = AppTest.from_file(APP, default_timeout=60)
+    for key, value in (query or {}).items():
+        at.query_params[key] = value
+    at.switch_page(f"views/{page}.py")
+    return at.run()
+
+
+def charts(at: AppTest) -> list[dict]:
+    """Each Vega-Lite chart on the page as its spec, with its datasets decoded to DataFrames."""
+    out = []
+    for element in at.get("vega_lite_chart"):
+        spec = json.loads(element.proto.spec)
+        spec["_data"] = {d.name: pa.ipc.open_stream(d.data.data).read_all().to_pandas()
+                         for d in element.proto.datasets}
+        out.append(spec)
+    return out
+
+
+def chart_titled(at: AppTest, fragment: str) -> dict:
+    found = [c for c in charts(at) if fragment in str(c.get("title", ""))]
+    assert found, f"no chart titled like {fragment!r}"
+    return found[0]
+
+
+def fields(spec: dict) -> set[str]:
+    text = json.dumps({k: v for k, v in spec.items() if k != "_data"})
+    return {f for f in ("ind_lcl", "ind_ucl", "mr_ucl", "ewma_lcl", "ewma_ucl", "lower95", "upper95",
+                        "lower998", "upper998", "event_at", "onset_at", "p10_pct") if f'"{f}' in text}
+
+
+@pytest.mark.parametrize("page", PAGES)
+def test_every_page_renders_on_a_populated_database(monkeypatch, fleet_db, page):
+    at = run_page(monkeypatch, fleet_db, page)
+    assert not at.exception, [e.value for e in at.exception]
+    assert not at.error, [e.value for e in at.error]
+    captions = " ".join(c.value for c in at.caption)
+    # common practice: every report states data range, software version and the cautions line
+    assert "Data range: 2026-01-05" in captions
+    assert "breathfleet " in captions and "Cautions:" in captions
+
+
+@pytest.mark.parametrize("page", PAGES)
+def test_every_page_renders_on_an_empty_database(monkeypatch, empty_db, page):
+    at = run_page(monkeypatch, empty_db, page)
+    assert not at.exception, [e.value for e in at.exception]
+    assert "Data range: no checks stored yet" in " ".join(c.value for c in at.caption)
+    assert any("not computed yet" in i.value for i in at.info)
+
+
+def test_a_missing_database_file_is_named(monkeypatch, tmp_path):
+    at = run_page(monkeypatch, tmp_path / "nowhere.duckdb", "fleet")
+    assert not at.exception
+    assert "nowhere.duckdb does not exist yet" in at.info[0].value
+
+
+def test_fleet_counts_and_region_filter(monkeypatch, fleet_db):
+    at = run_page(monkeypatch, fleet_db, "fleet")
+    metrics = {m.label: m.value for m in at.metric}
+    assert metrics["Units"] == "24"
+    # the fixture raises EWMA signals on three units in the last days of data
+    assert int(metrics["Signal in the last 7 days"]) + int(metrics["Out of tolerance (latest check)"]) >= 3
+    all_regions = chart_titled(at, "Units by region")
+    assert set(next(iter(all_regions["_data"].values()))["region"]) == {"North Basin", "Coastal Plain", "High Desert"}
+    at.selectbox(key="fleet_region").select("High Desert").run()
+    one_region = chart_titled(at, "Units by region")
+    assert set(next(iter(one_region["_data"].values()))["region"]) == {"High Desert"}
+    tiles = chart_titled(at, "Every unit, by site")
+    assert len(next(iter(tiles["_data"].values()))) == 8  # 24 units over 3 regions
+    trend = chart_titled(at, "Fleet relative error by week")
+    assert "p10_pct" in fields(trend)
+
+
+def test_queue_filters_change_the_table(monkeypatch, fleet_db):
+    at = run_page(monkeypatch, fleet_db, "queue")
+    full = at.dataframe[0].value
+    assert len(full) == 24 and list(full["rank"]) == sorted(full["rank"])
+    at.multiselect(key="queue_region").select("Coastal Plain").run()
+    filtered = at.dataframe[0].value
+    assert 0 < len(filtered) < len(full)
+    assert set(filtered["region"]) == {"Coastal Plain"}
+    at.multiselect(key="queue_technology").select("infrared").run()
+    both = at.dataframe[0].value
+    assert set(both["technology"]) == {"infrared"} and len(both) < len(filtered)
+
+
+def test_queue_opens_the_chosen_unit(monkeypatch, fleet_db):
+    at = run_page(monkeypatch, fleet_db, "queue")
+    at.selectbox(key="queue_open_unit").select("TX1005").run()
+    at.button(key="queue_open_button").click().run()
+    assert at.title[0].value == "Unit"
+    assert at.query_params["unit"] == ["TX1005"] or at.query_params["unit"] == "TX1005"
+    assert "**TX1005**" in at.markdown[0].value
+
+
+def test_unit_page_charts_carry_limits_events_and_signals(monkeypatch, fleet_db):
+    at = run_page(monkeypatch, fleet_db, "unit", {"unit": "TX1000"})
+    assert not at.exception
+    individuals = chart_titled(at, "Individuals")
+    assert {"ind_lcl", "ind_ucl", "event_at"} <= fields(individuals)
+    events = pd.concat([d for d in individuals["_data"].values() if "event_type" in d])
+    assert {"calibration", "solution_change", "lot_change"} <= set(events["event_type"])
+    assert {"mr_ucl"} <= fields(chart_titled(at, "Moving range"))
+    assert {"ewma_lcl", "ewma_ucl"} <= fields(chart_titled(at, "EWMA"))
+    cusum = chart_titled(at, "CUSUM")
+    # the fixture's drifting unit (TX1000) crosses h on its upper CUSUM, so a signal window is drawn
+    assert "onset_at" in fields(cusum)
+    for spec in charts(at):
+        assert all(len(d) <= MAX_POINTS for d in spec["_data"].values())
+    sentence = " ".join(m.value for m in at.markdown)
+    # the fixture gives TX1000 bias 1.98 % and drift 0.33 %/30 d: (5 - 1.98) / 0.33 * 30 = 275 days
+    assert "reaches the ±5 % tolerance" in sentence
+    assert "Expanded uncertainty" in [m.label for m in at.metric]
+
+
+def test_unit_level_choice_changes_the_chart(monkeypatch, fleet_db):
+    at = run_page(monkeypatch, fleet_db, "unit", {"unit": "TX1003"})
+    before = next(iter(chart_titled(at, "Checks: relative error")["_data"].values()))
+    other = [v for v in at.selectbox(key="unit_level").options if not v.startswith("0.080")][0]
+    at.selectbox(key="unit_level").set_value(float(other.split()[0])).run()
+    after = next(iter(chart_titled(at, "Checks: relative error")["_data"].values()))
+    assert set(before["level"]) == {0.08} and set(after["level"]) == {0.04}
+
+
+def test_comparison_funnel_has_limits_and_every_unit(monkeypatch, fleet_db):
+    at = run_page(monkeypatch, fleet_db, "comparison")
+    funnel = chart_titled(at, "mean relative error by number of checks")
+    # Spiegelhalter (2005) Stat Med 24:1185, section 3: limits at 95 % and 99.8 %
+    assert {"lower95", "upper95", "lower998", "upper998"} <= fields(funnel)
+    data = funnel["_data"].values()
+    units = next(d for d in data if "instrument_id" in d)
+    assert len(units) == 24
+    limits = next(d for d in funnel["_data"].values() if "upper95" in d)
+    widths = (limits["upper95"] - limits["lower95"]).to_numpy()
+    assert (widths[:-1] >= widths[1:]).all()  # the funnel narrows as n grows
+
+
+def test_lots_page_shows_verdicts_and_leads_to_units(monkeypatch, fleet_db):
+    at = run_page(monkeypatch, fleet_db, "lots")
+    effects = chart_titled(at, "Lot effects")
+    data = next(d for d in effects["_data"].values() if "verdict" in d)
+    assert set(data["verdict"]) == {"agrees", "off"}
+    table = at.dataframe[0].value
+    assert table.loc[table["lot_id"] == "WB-B1", "state"].item() == "rejected"
+    at.selectbox(key="lots_pick").select("WB-B1").run()
+    users = at.dataframe[-1].value
+    assert set(users["instrument_id"]) == {"TX1000", "TX1004", "TX1008", "TX1012", "TX1016", "TX1020"}
+    at.button(key="lots_open_unit").click().run()
+    assert at.title[0].value == "Unit"
+
+
+def test_data_quality_page(monkeypatch, fleet_db):
+    at = run_page(monkeypatch, fleet_db, "data_quality")
+    reasons = next(iter(chart_titled(at, "Quarantined rows by reason")["_data"].values()))
+    assert set(reasons["reason"]) == {"unparsable_field", "out_of_range"}
+    at.selectbox(key="dq_reason").select("out_of_range").run()
+    samples = [d.value for d in at.dataframe if "raw_line" in d.value.columns]
+    assert samples and set(samples[0]["reason"]) == {"out_of_range"}
+
+
+def test_okabe_ito_palette_marks_states():
+    # Okabe M, Ito K (2008) Color Universal Design: the eight colours, vermillion #D55E00, blue #0072B2
+    assert figures.STATE_COLOURS["out of tolerance"] == "#D55E00"
+    assert figures.STATE_COLOURS["in control"] == "#0072B2"
+    assert len(set(figures.STATE_SHAPES.values())) == len(figures.STATE_SHAPES)
+
+
+def test_new_snapshot_invalidates_cached_loads(tmp_path, monkeypatch):
+    import duckdb
+
+    from dashboard import loaders
+    from pipeline.db import publish_snapshot
+    db = build_fleet_db(tmp_path / "f.duckdb", n_units=3, days=20)
+    monkeypatch.setenv("BREATHFLEET_DB", str(db))
+    before = loaders.data_range()["n_checks"]
+    time.sleep(0.01)
+    con = duckdb.connect(str(db))
+    con.execute("INSERT INTO checks SELECT check_id + 100000, instrument_id, measured_at + INTERVAL 1 YEAR, lot_id, "
+                "check_type, target, measured, units, simulator_temp_c, pressure_kpa, site_id, operator_id, "
+                "outcome, file_id, line FROM checks")
+    publish_snapshot(con, db)
+    con.close()
+    assert loaders.data_range()["n_checks"] == 2 * before
+
+
+WRITER = textwrap.dedent("""
+    import sys, time, duckdb
+    from pipeline.db import publish_snapshot
+    db = sys.argv[1]
+    con = duckdb.connect(db)          # holds the write lock for the whole run, like an ingest
+    print("locked", flush=True)
+    for batch in range(12):
+        con.execute("INSERT INTO checks SELECT check_id + $o, instrument_id, measured_at + to_days($d), lot_id, "
+                    "check_type, target, measured, units, simulator_temp_c, pressure_kpa, site_id, operator_id, "
+                    "outcome, file_id, line FROM checks WHERE check_id < 1000",
+                    {"o": 1_000_000 * (batch + 1), "d": 100 * (batch + 1)})
+        publish_snapshot(con, db)
+        time.sleep(0.15)
+    con.close()
+""")
+
+
+def test_dashboard_reads_while_a_writer_ingests(tmp_path, monkeypatch):
+    db = build_fleet_db(tmp_path / "busy.duckdb", n_units=6, days=60)
+    writer = subprocess.Popen([sys.executable, "-c", WRITER, str(db)], stdout=subprocess.PIPE, text=True,
+                              cwd=Path(APP).parent.parent)
+    assert writer.stdout.readline().strip() == "locked"
+    seen = set()
+    try:
+        while writer.poll() is None:
+            for page in ("fleet", "unit", "data_quality"):
+                at = run_page(monkeypatch, db, page)
+                assert not at.exception, [e.value for e in at.exception]
+                assert not at.error, [e.value for e in at.error]
+                seen.add(next(c.value for c in at.caption if c.value.startswith("Data range")))
+    finally:
+        writer.wait(timeout=30)
+    assert writer.returncode == 0
+    assert len(seen) >= 2  # the pages followed the writer's published snapshots
+
+
+def test_cli_serves_headless_on_localhost(tmp_path):
+    command = streamlit_command(8642)
+    assert command[1:4] == ["-m", "streamlit", "run"]
+    assert command[command.index("--server.headless") + 1] == "true"
+    assert command[command.index("--server.address") + 1] == "127.0.0.1"
+    env = dashboard_environment(tmp_path / "x.duckdb", None)
+    assert env["BREATHFLEET_DB"] == str((tmp_path / "x.duckdb").resolve())
+
+
+def test_cli_names_a_missing_database(tmp_path):
+    from click.testing import CliRunner
+
+    from pipeline.cli import main
+    result = CliRunner().invoke(main, ["dashboard", "--db", str(tmp_path / "none.duckdb")])
+    assert result.exit_code == 1
+    assert "none.duckdb: database file does not exist; ingest data first" in result.output
