@@ -89,8 +89,18 @@ class ModelSettings:
     """Fleet mixed-effects model and lot verdicts."""
 
     window_days: int = 365
+    # Lot verdicts (pipeline/models/lot_verdicts.py): "off" when the 95 % interval excludes 0
+    # and |effect| > lot_off_effect_pct; "watch" when the interval excludes 0 and |effect| >
+    # lot_watch_effect_pct, or when the interval still reaches past +/- lot_off_effect_pct.
     lot_off_effect_pct: float = 2.0
     lot_watch_effect_pct: float = 1.0
+    confidence: float = 0.95
+    # New-lot acceptance: Wald's two-sided SPRT, H0 effect 0 vs H1 |effect| = acceptance_delta_pct.
+    acceptance_delta_pct: float = 2.0
+    acceptance_alpha: float = 0.01      # chance of rejecting a lot that agrees (split over both sides)
+    acceptance_beta: float = 0.01       # chance of accepting a lot that is off by delta
+    acceptance_max_checks: int = 2000   # first checks per lot the rule looks at
+    diagnostics_sample: int = 200000    # checks sampled for residual diagnostics
 
 
 @dataclass(frozen=True)
