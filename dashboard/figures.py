@@ -42,7 +42,7 @@ def state_by_region(counts: pd.DataFrame) -> alt.Chart:
         y=alt.Y("region:N", title="region", sort="-x"),
         x=alt.X("units:Q", title="units", stack="zero"),
         color=alt.Color("state:N", scale=_scale(STATE_COLOURS), title="state",
-                        legend=alt.Legend(orient="bottom")),
+                        legend=alt.Legend(orient="top")),
         order=alt.Order("state_order:Q"),
         tooltip=["region:N", "state:N", "units:Q"],
     ).transform_calculate(
@@ -56,7 +56,7 @@ def unit_tiles(states: pd.DataFrame) -> alt.Chart:
         x=alt.X("position:O", title=None, axis=None),
         y=alt.Y("site_id:N", title="site"),
         color=alt.Color("state:N", scale=_scale(STATE_COLOURS), title="state",
-                        legend=alt.Legend(orient="bottom")),
+                        legend=alt.Legend(orient="top")),
         shape=alt.Shape("state:N", scale=_scale(STATE_SHAPES), legend=None),
         tooltip=["instrument_id:N", "site_id:N", "state:N", "recent_signals:Q", "last_check_at:T"],
     ).transform_window(

@@ -88,11 +88,11 @@ def build_fleet_db(path: Path, n_units: int = 24, days: int = 180, seed: int = 7
     })
     units["region"] = units["site_id"].map(sites.set_index("site_id")["region"])
     _insert(con, "instruments", units)
-    lots = pd.DataFrame({"lot_id": ["WB-A1", "WB-A2", "WB-B1", "DG-C1"],
-                         "standard_kind": ["wet_bath", "wet_bath", "wet_bath", "dry_gas"],
-                         "target": [0.080, 0.080, 0.080, 0.080], "units": ["g/210L"] * 4,
-                         "expanded_uncertainty": [0.0016] * 4, "certified_on": [START.date()] * 4,
-                         "expires_on": [(START + pd.Timedelta(days=720)).date()] * 4, "supplier": ["Lab One"] * 4})
+    lots = pd.DataFrame({"lot_id": ["WB-A1", "WB-A2", "WB-B1", "DG-C1", "WB-L1"],
+                         "standard_kind": ["wet_bath", "wet_bath", "wet_bath", "dry_gas", "wet_bath"],
+                         "target": [0.080, 0.080, 0.080, 0.080, 0.040], "units": ["g/210L"] * 5,
+                         "expanded_uncertainty": [0.0016] * 5, "certified_on": [START.date()] * 5,
+                         "expires_on": [(START + pd.Timedelta(days=720)).date()] * 5, "supplier": ["Lab One"] * 5})
     _insert(con, "lots", lots)
 
     rows, events = [], []
@@ -103,9 +103,10 @@ def build_fleet_db(path: Path, n_units: int = 24, days: int = 180, seed: int = 7
             at = START + pd.Timedelta(days=d, hours=8 + u % 8)
             lot = "WB-A1" if d < days // 2 else ("WB-B1" if u % 4 == 0 else "WB-A2")
             for level in (0.080, 0.040) if d % 7 == 0 else (0.080,):
+                lot_here = lot if level == 0.080 else "WB-L1"
                 measured = level * (1 + drift * d + rng.normal(0, 0.01))
                 measured = np.floor(measured * 1000) / 1000
-                rows.append({"check_id": check_id, "instrument_id": unit, "measured_at": at, "lot_id": lot,
+                rows.append({"check_id": check_id, "instrument_id": unit, "measured_at": at, "lot_id": lot_here,
                              "check_type": "daily" if level == 0.080 else "verification", "target": level,
                              "measured": measured, "units": "g/210L", "simulator_temp_c": 34.0,
                              "site_id": units.loc[u, "site_id"], "outcome": "pass", "file_id": 1 + d // 30,
@@ -196,11 +197,11 @@ def _fill_model(con, checks: pd.DataFrame, units: pd.DataFrame, lots: pd.DataFra
         "fit_id": 1, "fitted_at": fitted, "window_start": checks["measured_at"].min(), "window_end": fitted,
         "n_checks": len(checks), "n_units": len(units), "n_lots": len(lots), "converged": True,
         "boundary": False, "warnings": "[]", "parameters": "{}", "software_version": "0.1.0", "duration_s": 1.0}]))
-    effects = [0.1, -0.2, 2.6, 0.0]
+    effects = [0.1, -0.2, 2.6, 0.0, 0.3]
     _insert(con, "lot_effects", pd.DataFrame({
         "fit_id": 1, "lot_id": lots["lot_id"], "standard_kind": lots["standard_kind"], "effect_pct": effects,
         "ci_low_pct": [e - 0.5 for e in effects], "ci_high_pct": [e + 0.5 for e in effects],
-        "n_units": 6, "n_checks": 500, "verdict": ["agrees", "agrees", "off", "agrees"],
+        "n_units": 6, "n_checks": 500, "verdict": ["agrees", "agrees", "off", "agrees", "agrees"],
         "verdict_since": fitted.date()}))
     drift = [0.33 if i % 5 == 0 else 0.0 for i in range(len(units))]
     _insert(con, "unit_estimates", pd.DataFrame({
@@ -214,8 +215,8 @@ def _fill_model(con, checks: pd.DataFrame, units: pd.DataFrame, lots: pd.DataFra
         "fit_id": 1, "component": ["unit", "lot", "residual"], "variance": [0.4, 0.1, 1.0],
         "ci_low": [0.2, 0.02, 0.9], "ci_high": [0.7, 0.3, 1.1]}))
     _insert(con, "lot_acceptance", pd.DataFrame({
-        "lot_id": lots["lot_id"], "state": ["accepted", "accepted", "rejected", "pending"],
-        "decided_at": fitted, "n_checks": 40, "statistic": [0.2, 0.4, 5.1, None], "parameters": "{}"}))
+        "lot_id": lots["lot_id"], "state": ["accepted", "accepted", "rejected", "pending", "accepted"],
+        "decided_at": fitted, "n_checks": 40, "statistic": [0.2, 0.4, 5.1, None, 0.1], "parameters": "{}"}))
     _insert(con, "model_diagnostics", pd.DataFrame({
         "fit_id": 1, "diagnostic": ["residual_normality", "converged"], "value": [0.3, 1.0],
         "passed": [True, True], "message": ["ok", "ok"]}))

@@ -15,19 +15,25 @@ if frame.missing(levels):
     frame.not_computed("Funnel plot", "Ingest checks first.")
     st.stop()
 
-c1, c2 = st.columns(2)
+c1, c2, c3 = st.columns([2, 2, 1])
 level = c1.selectbox("Level (g/210L)", levels["level"].tolist(), format_func=lambda v: f"{v:.3f}", key="cmp_level")
 days = c2.select_slider("Window (days of data)", [30, 90, 180, 365, 730], value=90, key="cmp_days")
-units = loaders.load("dashboard_funnel_units", level=level, days=days, max_points=loaders.MAX_POINTS)
-limits = loaders.load("dashboard_funnel_limits", level=level, days=days)
+overdispersed = c3.toggle("Allow for unit-to-unit spread", value=True, key="cmp_overdispersed",
+                          help="Adds the between-unit variance beyond chance (tau²) to the limits, "
+                               "as Spiegelhalter (2005) section 6.2 advises when most units fall outside.")
+units = loaders.load("dashboard_funnel_units", level=level, days=days, max_points=loaders.MAX_POINTS,
+                     overdispersed=overdispersed)
+limits = loaders.load("dashboard_funnel_limits", level=level, days=days, overdispersed=overdispersed)
 if frame.missing(units) or frame.missing(limits):
     frame.not_computed("Funnel plot for this level and window", "Too few checks with an expected value.")
     st.stop()
 
 n_units = int(limits["n_units"].iloc[0])
 frame.chart(figures.funnel_chart(units, limits), key="funnel")
+tau = float(limits["tau_pct"].iloc[0])
 note = (f"{n_units:,} units; limits are the fleet mean ± 1.96 and ± 3.09 standard errors "
-        "(pooled within-unit standard deviation / √n), after Spiegelhalter (2005).")
+        "(pooled within-unit standard deviation / √n"
+        + (f", plus a unit-to-unit spread τ = {tau:.2f} %" if overdispersed else "") + "), after Spiegelhalter (2005).")
 if n_units > len(units):
     note += f" The {len(units):,} most extreme units are drawn; the others lie closer to the mean."
 st.caption(note)

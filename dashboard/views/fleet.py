@@ -24,16 +24,13 @@ regions = sorted(states["region"].dropna().unique())
 region = st.selectbox("Region", ["All regions", *regions], key="fleet_region")
 shown = states if region == "All regions" else states[states["region"] == region]
 
-left, right = st.columns([2, 3])
-with left:
-    by_region = loaders.state_counts(shown, ["region"])
-    frame.chart(figures.state_by_region(by_region), key="state_by_region")
-with right:
-    if region != "All regions" and len(shown) <= loaders.MAX_POINTS:
-        frame.chart(figures.unit_tiles(shown[["instrument_id", "site_id", "state", "recent_signals",
-                                              "last_check_at"]]), key="unit_tiles")
-    else:
-        st.caption("Choose a region to see every unit by site.")
+by_region = loaders.state_counts(shown, ["region"])
+frame.chart(figures.state_by_region(by_region), key="state_by_region")
+if region != "All regions" and len(shown) <= loaders.MAX_POINTS:
+    frame.chart(figures.unit_tiles(shown[["instrument_id", "site_id", "state", "recent_signals",
+                                          "last_check_at"]]), key="unit_tiles")
+else:
+    st.caption("Choose a region to see every unit by site.")
 by_site = loaders.state_counts(shown, ["region", "site_id"]).pivot_table(
     index=["region", "site_id"], columns="state", values="units", fill_value=0).reset_index()
 frame.table_alternative(by_site, "Units by site and state (table)")

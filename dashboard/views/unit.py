@@ -21,8 +21,9 @@ unit_id = st.selectbox("Unit", ids, index=index, key=f"unit_pick_{wanted}")
 if unit_id != wanted:
     st.query_params["unit"] = unit_id
 info = units[units["instrument_id"] == unit_id].iloc[0]
+since = pd.Timestamp(info["in_service_on"]) if pd.notna(info["in_service_on"]) else None
 st.markdown(f"**{unit_id}** · {info['technology']} {info['model'] or ''} · site {info['site_id']} · "
-            f"region {info['region']} · in service since {info['in_service_on'] or 'unknown'}")
+            f"region {info['region']}" + (f" · in service since {since:%Y-%m-%d}" if since is not None else ""))
 
 levels = loaders.load("dashboard_unit_levels", instrument_id=unit_id)
 if frame.missing(levels):
@@ -33,6 +34,8 @@ level = st.selectbox("Level (g/210L)", levels["level"].tolist(),
                      key="unit_level")
 
 events = loaders.load("dashboard_unit_events", instrument_id=unit_id)
+if events is not None:  # service events, and lot changes at the level shown
+    events = events[events["level"].isna() | (events["level"].round(3) == round(level, 3))]
 signals = loaders.load("dashboard_unit_signals", instrument_id=unit_id)
 level_signals = None if signals is None else signals[signals["level"].round(3) == round(level, 3)]
 checks = loaders.load("dashboard_unit_checks", instrument_id=unit_id, level=level, max_points=loaders.MAX_POINTS)

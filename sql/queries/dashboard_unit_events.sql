@@ -1,13 +1,16 @@
 -- name: dashboard_unit_events
--- One row: a service event of unit $instrument_id, or a change of reference lot seen in its checks.
+-- One row: a service event of unit $instrument_id (level NULL), or a change of reference lot seen
+-- in its checks at one level.
 -- requires: service_events, checks
 WITH lot_runs AS (
-    SELECT measured_at, lot_id, lag(lot_id) OVER (ORDER BY measured_at, check_id) AS previous_lot
+    SELECT measured_at, round(target, 3) AS level, lot_id,
+           lag(lot_id) OVER (PARTITION BY round(target, 3) ORDER BY measured_at, check_id) AS previous_lot
     FROM checks
     WHERE instrument_id = $instrument_id
 )
-SELECT event_at, event_type, notes FROM service_events WHERE instrument_id = $instrument_id
+SELECT event_at, event_type, notes, CAST(NULL AS DOUBLE) AS level
+FROM service_events WHERE instrument_id = $instrument_id
 UNION ALL
-SELECT measured_at, 'lot_change', previous_lot || ' -> ' || lot_id
+SELECT measured_at, 'lot_change', previous_lot || ' -> ' || lot_id, level
 FROM lot_runs WHERE previous_lot IS NOT NULL AND previous_lot <> lot_id
 ORDER BY 1;
