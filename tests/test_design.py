@@ -91,6 +91,19 @@ def test_design_rejects_bad_targets():
         design_ewma(500.0, 0.0)
 
 
+def test_design_rejects_unreachable_arl0():
+    with pytest.raises(ValueError, match="no decision interval h gives an in-control ARL of 1.5 with k = 0.5"):
+        design_cusum(1.5, 1.0)
+    with pytest.raises(ValueError, match="no EWMA design reaches an in-control ARL of 1.5; choose a larger ARL0"):
+        design_ewma(1.5, 1.0)
+
+
+def test_design_ewma_warns_when_lambda_is_on_the_bound():
+    d = design_ewma(500.0, 8.0)
+    # Lucas & Saccucci (1990): for very large shifts the EWMA tends to the Shewhart chart (lambda -> 1)
+    assert d.lam > 0.99 and any("search bound" in w for w in d.warnings)
+
+
 def test_evaluate_cusum_headstart_recorded():
     d = evaluate_cusum(0.5, 5.0, 1.0, headstart=2.5)
     # Lucas & Crosier (1982): the FIR headstart h/2 shortens the out-of-control ARL

@@ -312,7 +312,10 @@ def ewma_limit(lam: float, L: float) -> float:
 
 @lru_cache(maxsize=8)
 def _gauss_legendre(n: int) -> tuple[np.ndarray, np.ndarray]:
-    return np.polynomial.legendre.leggauss(n)
+    nodes, weights = np.polynomial.legendre.leggauss(n)
+    nodes.flags.writeable = False  # cached: shared between calls
+    weights.flags.writeable = False
+    return nodes, weights
 
 
 def _ewma_nodes(lam: float, L: float, n_nodes: int) -> tuple[np.ndarray, np.ndarray, float]:

@@ -109,10 +109,14 @@ def design_cusum(arl0: float = 500.0, shift: float = 1.0, *, headstart: float = 
     notes: list[str] = []
 
     def gap(h: float) -> float:
-        return math.log(_arl.cusum_arl(k, h, 0.0, min(headstart, 0.999 * h))) - math.log(arl0)
+        value = _arl.cusum_arl(k, h, 0.0, min(headstart, 0.999 * h))
+        return math.log(value) - math.log(arl0) if 0 < value < 1e12 else 30.0
 
     # Bracket around Siegmund's approximation, which is within a few percent of the chain's h.
-    guess = brentq(lambda h: math.log(_arl.siegmund_arl(k, h)) - math.log(arl0), 1e-3, 100.0)
+    try:
+        guess = brentq(lambda h: math.log(_arl.siegmund_arl(k, h)) - math.log(arl0), 1e-3, 100.0)
+    except (ValueError, OverflowError):
+        guess = 5.0
     lo, hi = max(0.05, 0.9 * guess - 0.2), 1.1 * guess + 0.2
     for _ in range(20):
         if gap(lo) <= 0:
@@ -123,7 +127,8 @@ def design_cusum(arl0: float = 500.0, shift: float = 1.0, *, headstart: float = 
             break
         hi *= 1.5
     if gap(lo) > 0 or gap(hi) < 0:
-        raise ValueError(f"no decision interval h gives ARL0 = {arl0} with k = {k}")
+        raise ValueError(f"no decision interval h gives an in-control ARL of {arl0} with k = {k}; "
+                         "choose a larger ARL0 or a smaller shift")
     h = brentq(gap, lo, hi, xtol=1e-6)
     if headstart >= h:
         notes.append(f"headstart {headstart} is not below h = {h:.4f}; it was limited to 0.999 h")
@@ -155,6 +160,8 @@ def ewma_L_for_arl0(lam: float, arl0: float = 500.0) -> float:
         # Far beyond any useful ARL0 the linear system loses precision; treat it as "too large".
         return math.log(value) - math.log(arl0) if 0 < value < 1e12 else 30.0
 
+    if gap(0.3) > 0 or gap(6.0) < 0:
+        raise ValueError(f"no limit multiple L in [0.3, 6] gives an in-control ARL of {arl0} with lambda = {lam}")
     return float(brentq(gap, 0.3, 6.0, xtol=1e-7))
 
 
@@ -177,7 +184,10 @@ def design_ewma(arl0: float = 500.0, shift: float = 1.0, *, drift: float | None 
 
     with _warnings.catch_warnings(record=True) as caught:
         _warnings.simplefilter("always")
-        res = minimize_scalar(arl1_of, bounds=(lo, hi), method="bounded", options={"xatol": 5e-4})
+        try:
+            res = minimize_scalar(arl1_of, bounds=(lo, hi), method="bounded", options={"xatol": 5e-4})
+        except ValueError as exc:
+            raise ValueError(f"no EWMA design reaches an in-control ARL of {arl0}; choose a larger ARL0") from exc
     lam = float(res.x)
     notes = [str(w.message) for w in caught]
     if min(lam - lo, hi - lam) < 1e-3:
