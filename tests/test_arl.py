@@ -101,12 +101,12 @@ def test_cusum_arl_matches_lucas_crosier_table(row):
     assert computed == pytest.approx(float(row["arl"]), **_printed(row["arl"], 1e-2))
 
 
-@pytest.mark.parametrize("shift", [0.0, 0.5, 1.0, 2.0])
+@pytest.mark.parametrize("shift", [0.0, 1.0, 2.5])
 def test_cusum_discretisation_has_converged(shift):
     default = cusum_arl(0.5, 5.0, shift)  # Richardson extrapolation of 100- and 200-cell chains
-    fine = cusum_arl(0.5, 5.0, shift, n_states=800)
-    # Brook & Evans (1972): the chain converges as the cell width shrinks (error ~ 1/m^2, 800 cells are
-    # within 2e-5 of the limit); the extrapolated default agrees with 800 cells to 5e-5
+    fine = cusum_arl(0.5, 5.0, shift, n_states=600)
+    # Brook & Evans (1972): the chain converges as the cell width shrinks (error ~ 1/m^2, 600 cells are
+    # within 3e-5 of the limit); the extrapolated default agrees with 600 cells to 5e-5
     assert default == pytest.approx(fine, rel=5e-5)
 
 
