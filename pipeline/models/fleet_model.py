@@ -35,7 +35,7 @@ import pandas as pd
 from scipy import stats
 
 from pipeline import __version__
-from pipeline.db import query_df, transaction
+from pipeline.db import query_df, sql_text, transaction
 from pipeline.models.diagnostics import Diagnostic, residual_diagnostics
 from pipeline.models.lot_acceptance import SprtResult, run_sprt
 from pipeline.models.lot_verdicts import classify_lot, verdict_since
@@ -96,7 +96,16 @@ def fit_fleet_model(con: duckdb.DuckDBPyConnection, settings: Settings) -> Fleet
         return _empty_result(settings, fitted_at, started, "no checks with a relative error: nothing to fit")
     window_end = pd.Timestamp(end).to_pydatetime()
     window_start = window_end - dt.timedelta(days=ms.window_days)
-    cells = query_df(con, "queries/model_cells", window_start=window_start, window_end=window_end)
+    con.execute(sql_text("queries/model_base"), {"window_start": window_start, "window_end": window_end})
+    try:
+        return _fit_window(con, settings, fitted_at, started, window_start, window_end)
+    finally:
+        con.execute("DROP TABLE IF EXISTS model_base")
+
+
+def _fit_window(con, settings: Settings, fitted_at, started, window_start, window_end) -> FleetModelResult:
+    ms = settings.model
+    cells = query_df(con, "queries/model_cells")
     if cells.empty:
         return _empty_result(settings, fitted_at, started, "no checks in the window", (window_start, window_end))
     cells["subject"], subjects = pd.factorize(
@@ -136,8 +145,7 @@ def fit_fleet_model(con: duckdb.DuckDBPyConnection, settings: Settings) -> Fleet
             diagnostics=tuple(diags), fixed_effects=fixed)
     lots = _lot_effects(fit, cells, lot_ids, ms)
     units = _unit_estimates(fit, cells, subjects, ms)
-    sample = query_df(con, "queries/model_sample", window_start=window_start, window_end=window_end,
-                      sample_size=int(ms.diagnostics_sample))
+    sample = query_df(con, "queries/model_sample", sample_size=int(ms.diagnostics_sample))
     adj, var = _adjust(sample, fit, subjects, lot_ids, groups, include_lot=True)
     z = adj / np.sqrt(np.asarray(fit.residual_var)[sample["residual_group"].map(
         {g: i for i, g in enumerate(groups)}).to_numpy()])
@@ -238,8 +246,7 @@ def _adjust(frame: pd.DataFrame, fit: RemlFit, subjects, lot_ids, groups, *, inc
 
 
 def _acceptance(con, fit: RemlFit, subjects, lot_ids, groups, ms, window_end) -> tuple[SprtResult, ...]:
-    first = query_df(con, "queries/model_lot_first_checks", window_end=window_end,
-                     max_checks=int(ms.acceptance_max_checks))
+    first = query_df(con, "queries/model_lot_first_checks", max_checks=int(ms.acceptance_max_checks))
     if first.empty:
         return ()
     adj, unit_var = _adjust(first, fit, subjects, lot_ids, groups, include_lot=False)

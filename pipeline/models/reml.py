@@ -28,7 +28,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from scipy import optimize
+from scipy import optimize, sparse
 
 STAT_COLUMNS = ("n", "st", "stt", "sd", "sdd", "std", "sy", "sty", "sdy", "syy")
 _LOG2PI = np.log(2.0 * np.pi)
@@ -87,11 +87,14 @@ class _Problem:
         self.ent_subject = np.concatenate(ent_subject)
         self.ent_col = np.concatenate(ent_col)
         self.n_lot_entries = n_lot_entries
-        ents = pd.DataFrame({"subject": self.ent_subject, "e": np.arange(len(self.ent_subject))})
-        pairs = ents.merge(ents, on="subject", suffixes=("1", "2"))
-        self.pair1 = pairs["e1"].to_numpy()
-        self.pair2 = pairs["e2"].to_numpy()
-        self.pair_flat = self.ent_col[self.pair1] * self.p + self.ent_col[self.pair2]
+        # F = B R (R R' = M_i per subject) has a fixed sparsity pattern: (column, 2 subject + k).
+        ne = len(self.ent_subject)
+        rows = np.repeat(self.ent_col, 2)
+        cols = (2 * np.repeat(self.ent_subject, 2) + np.tile([0, 1], ne))
+        pattern = sparse.csr_matrix((np.arange(1, 2 * ne + 1, dtype=float), (rows, cols)),
+                                    shape=(self.p, 2 * n_subjects))
+        self.f_order = pattern.data.astype(np.int64) - 1       # csr slot -> flat (entry, k)
+        self.f_pattern = pattern
 
     def _weighted(self, log_r: np.ndarray):
         w = np.exp(-log_r)[self.group]
@@ -153,9 +156,17 @@ class _Problem:
         Dinv[:, 0, 1], Dinv[:, 1, 0] = -D[:, 0, 1] / det, -D[:, 1, 0] / det
         M = np.einsum("ij,njk->nik", G, Dinv)
         M = 0.5 * (M + M.transpose(0, 2, 1))
-        m = np.einsum("eij,ej->ei", M[self.ent_subject], b)     # M_i b_e
-        vals = np.einsum("ei,ei->e", b[self.pair1], m[self.pair2])
-        BMB = np.bincount(self.pair_flat, vals, self.p * self.p).reshape(self.p, self.p)
+        # Sum_i B_i M_i B_i' = F F' with F = B R, R R' = M_i (2x2 Cholesky of a PSD matrix).
+        r11 = np.sqrt(np.maximum(M[:, 0, 0], 0.0))
+        r21 = np.divide(M[:, 1, 0], r11, out=np.zeros_like(r11), where=r11 > 0)
+        r22 = np.sqrt(np.maximum(M[:, 1, 1] - r21 * r21, 0.0))
+        s_e = self.ent_subject
+        fvals = np.empty((len(s_e), 2))
+        fvals[:, 0] = b[:, 0] * r11[s_e] + b[:, 1] * r21[s_e]
+        fvals[:, 1] = b[:, 1] * r22[s_e]
+        F = self.f_pattern.copy()
+        F.data = fvals.ravel()[self.f_order]
+        BMB = (F @ F.T).toarray()
         Mu = np.einsum("nij,nj->ni", M, u)
         bmu = np.bincount(self.ent_col, np.einsum("ei,ei->e", b, Mu[self.ent_subject]), self.p)
         umu = float(np.einsum("ni,ni->", u, Mu))
@@ -219,17 +230,19 @@ def fit_reml(cells: pd.DataFrame, *, n_lots: int, n_subjects: int, n_groups: int
         warnings.simplefilter("always")
         res = optimize.minimize(prob.objective, theta0, method="L-BFGS-B",
                                 options={"maxiter": maxiter, "ftol": 1e-12, "gtol": 1e-7})
-        # A derivative-free polish guards against a stalled quasi-Newton step near a boundary.
-        res2 = optimize.minimize(prob.objective, res.x, method="Nelder-Mead",
-                                 options={"xatol": 1e-7, "fatol": 1e-10, "maxiter": 200 * len(theta0)})
-        if res2.fun < res.fun - 1e-9:
-            res_x, res_fun = res2.x, res2.fun
-        else:
-            res_x, res_fun = res.x, res.fun
+        res_x, res_fun = res.x, res.fun
+        polished = False
+        if not res.success:
+            # A derivative-free retry when the quasi-Newton step stalled (often near a boundary).
+            res2 = optimize.minimize(prob.objective, res.x, method="Nelder-Mead",
+                                     options={"xatol": 1e-7, "fatol": 1e-10, "maxiter": 400 * len(theta0)})
+            polished = bool(res2.success)
+            if res2.fun <= res.fun:
+                res_x, res_fun = res2.x, res2.fun
         caught.extend(str(w.message) for w in wlist)
-    converged = bool(np.isfinite(res_fun) and (res.success or res2.success))
+    converged = bool(np.isfinite(res_fun) and (res.success or polished))
     if not res.success:
-        caught.append(f"L-BFGS-B: {res.message}")
+        caught.append(f"L-BFGS-B: {res.message}" + ("; Nelder-Mead retry converged" if polished else ""))
     theta = res_x
     r = prob.solve(theta)
     cov_unscaled = np.linalg.inv(r["XtVX"])
