@@ -27,8 +27,21 @@ def _function(module: str, name: str):
         return None
 
 
+def _find_key(tree, keys: tuple[str, ...]):
+    if isinstance(tree, dict):
+        for key in keys:
+            if isinstance(tree.get(key), (int, float)):
+                return float(tree[key])
+        for value in tree.values():
+            found = _find_key(value, keys)
+            if found is not None:
+                return found
+    return None
+
+
 def cusum_h(baselines: pd.DataFrame | None, level: float) -> float | None:
-    """The CUSUM decision interval h recorded in the latest baseline's parameters at `level`."""
+    """The CUSUM decision interval h recorded in the latest baseline's parameters at `level`
+    (a key `h` or `cusum_h`, at the top of the JSON or inside a nested design table)."""
     if baselines is None or baselines.empty:
         return None
     rows = baselines[baselines["level"].round(3) == round(level, 3)]
@@ -37,11 +50,11 @@ def cusum_h(baselines: pd.DataFrame | None, level: float) -> float | None:
             params = json.loads(text) if isinstance(text, str) else {}
         except ValueError:
             continue
-        for key in ("h", "cusum_h"):
-            if key in params:
-                return float(params[key])
-            if isinstance(params.get("cusum"), dict) and key in params["cusum"]:
-                return float(params["cusum"][key])
+        cusum = params.get("cusum") if isinstance(params.get("cusum"), dict) else None
+        found = _find_key(cusum, ("h",)) if cusum else None
+        found = found if found is not None else _find_key(params, ("cusum_h", "h"))
+        if found is not None:
+            return found
     return None
 
 

@@ -163,7 +163,9 @@ def _fill_charts(con, checks: pd.DataFrame, units: pd.DataFrame) -> None:
             e = 0.2 * v + 0.8 * e
             up.append(cu), lo.append(cl), ew.append(e)
         f = pd.DataFrame({"check_id": g["check_id"], "instrument_id": unit, "level": level, "baseline_period": 0,
-                          "measured_at": g["measured_at"], "z": z, "moving_range": mr, "cusum_upper": up,
+                          "measured_at": g["measured_at"], "position": range(1, len(g) + 1),
+                          "relative_error": g["re"], "sigma_source": "unit", "cusum_upper_run": 0,
+                          "cusum_lower_run": 0, "z": z, "moving_range": mr, "cusum_upper": up,
                           "cusum_lower": lo, "ewma": ew, "ewma_lcl": -2.86 * 0.577, "ewma_ucl": 2.86 * 0.577,
                           "center": center, "sigma": sigma, "ind_lcl": -3.0, "ind_ucl": 3.0, "mr_ucl": 3.686})
         frames.append(f)

@@ -54,20 +54,19 @@ else:
     events_in = None if events is None else events[events["event_at"] >= points["measured_at"].min()]
     baselines = loaders.load("dashboard_unit_baselines", instrument_id=unit_id)
     h = library.cusum_h(baselines, level)
-    tabs = st.tabs(["Individuals / moving range", "CUSUM", "EWMA"])
-    with tabs[0]:
+    kind = st.radio("Chart", ["Individuals / moving range", "CUSUM", "EWMA"], horizontal=True, key="unit_chart")
+    if kind == "CUSUM":  # one chart at a time: the browser draws only what is looked at
+        frame.chart(figures.cusum_chart(points, h, events_in, level_signals), key="unit_cusum")
+    elif kind == "EWMA":
+        frame.chart(figures.ewma_chart(points, events_in, level_signals), key="unit_ewma")
+    else:
         frame.chart(figures.individuals_chart(points, events_in, level_signals), key="unit_individuals")
         frame.chart(figures.moving_range_chart(points, events_in, level_signals), key="unit_mr")
-    with tabs[1]:
-        frame.chart(figures.cusum_chart(points, h, events_in, level_signals), key="unit_cusum")
-    with tabs[2]:
-        frame.chart(figures.ewma_chart(points, events_in, level_signals), key="unit_ewma")
     if baselines is not None and not baselines.empty:
         frame.table_alternative(baselines, "Frozen baselines (center, sigma, how they were set)")
 
 if events is not None and not events.empty:
-    frame.chart(figures.event_strip(events), key="unit_events")
-    frame.table_alternative(events, "Events as a table")
+    frame.table_alternative(events, "Service events and lot changes (marked on the charts' time axis)")
 
 st.subheader("Signals and their impact windows")
 if signals is None:

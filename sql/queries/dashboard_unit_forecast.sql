@@ -10,7 +10,7 @@ WITH est AS (
            coalesce(bias_drift_cov, 0) AS cov
     FROM unit_estimates
     WHERE instrument_id = $instrument_id
-      AND fit_id = (SELECT fit_id FROM model_fits ORDER BY fitted_at DESC LIMIT 1)
+      AND fit_id = (SELECT fit_id FROM model_fits WHERE converged ORDER BY fitted_at DESC LIMIT 1)
     ORDER BY baseline_period DESC
     LIMIT 1
 ),
