@@ -80,8 +80,11 @@ class ChartSettings:
     own_baseline_min_checks: int = 20
     target_arl0: float = 500.0
     shift_sigma: float = 1.0
-    run_rules: str = "western_electric"
-    fleet_fdr_q: float = 0.05
+    run_rules: str = "western_electric"      # western_electric | nelson
+    rules: tuple[str, ...] = ()              # subset of the set's rules (WE1.., N1..); empty = all
+    fleet_fdr_q: float = 0.05                # Benjamini-Hochberg q over each run's signals
+    cusum_headstart: float = 0.0             # FIR headstart (sigma) at each segment start
+    replicate_window_minutes: float = 10.0   # checks of one unit, level and type this close form an X-bar/S group
 
 
 @dataclass(frozen=True)
@@ -109,7 +112,27 @@ class QueueSettings:
 
     calibration_interval_days: int = 365
     silence_days: int = 14
+    # Days to a unit's next scheduled check or visit: the horizon of the breach probability.
     horizon_days: int = 30
+    # Tolerance in percent is max(relative, absolute / reference_level) of the default rule.
+    reference_level: float = 0.080
+    rate_window_days: int = 90          # aborted/invalid rates (Laney p' chart) over this window
+    signal_window_days: int = 30        # chart signals this recent count as active
+    lot_window_days: int = 60           # lots a unit used this recently can explain its readings
+    # Evidence beyond the forecast, each as a probability of breach before the next visit; they are
+    # combined with the forecast as independent causes: P = 1 - prod(1 - p_i).
+    p_out_of_tolerance: float = 0.9     # a check on the unit's last day failed our verdict
+    p_signal_fleet: float = 0.4         # an active signal significant across the fleet (BH)
+    p_signal_local: float = 0.15        # an active signal not significant across the fleet
+    p_calibration_overdue: float = 0.2
+    p_silent: float = 0.15
+    p_attribute: float = 0.15           # aborted/invalid rate above its Laney p' limit
+    # A lot verdict 'off' that matches the direction of the unit's readings multiplies the
+    # evidence it explains (out of tolerance, signals) by this factor: the lot is the problem.
+    lot_explained_factor: float = 0.2
+    shrink_to_fleet: bool = True        # empirical Bayes shrinkage of bias and drift before ranking
+    rank_simulations: int = 200         # draws for the rank intervals
+    rank_seed: int = 20261
 
 
 @dataclass(frozen=True)

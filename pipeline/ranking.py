@@ -1,0 +1,392 @@
+"""The service queue: which units to visit first, how sure we are of the order, and why.
+
+Priority is a probability a coordinator can read: the chance that a unit breaches tolerance before
+its next scheduled check or visit (`QueueSettings.horizon_days`). It starts from the unit's
+predictive distribution (pipeline.forecast: bias at the reference time + drift x horizon, with their
+covariance, plus residual and between-lot variance), after empirical Bayes shrinkage of bias and
+drift toward the fleet (James-Stein / Efron & Morris 1975 normal-normal shrinkage, between-unit
+variance by method of moments), so a unit with few checks does not top the list by noise. The other
+evidence (out of tolerance now, chart signals, calibration overdue, silence, aborted/invalid rate on
+a Laney p' chart) enters as independent causes with probabilities from settings:
+P = 1 - prod(1 - p_i). A lot verdict 'off' in the direction of the unit's readings scales the
+evidence it explains by `lot_explained_factor`. Rank intervals come from simulating the shrunk
+estimates (5th-95th percentiles of the simulated ranks).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import dataclass, field
+from datetime import datetime
+
+import duckdb
+import numpy as np
+import pandas as pd
+
+from pipeline import __version__
+from pipeline.attribute_chart import laney_p_chart
+from pipeline.db import query_df
+from pipeline.forecast import breach_probability, forecast_bias
+from pipeline.settings import QueueSettings, Settings
+
+Z95 = 1.959963984540054
+
+
+@dataclass(frozen=True)
+class QueueEntry:
+    """One unit's place in the queue."""
+
+    rank: int
+    instrument_id: str
+    region: str | None
+    site_id: str | None
+    p_breach: float
+    rank_low: int
+    rank_high: int
+    reasons: tuple[str, ...]
+    evidence: dict = field(hash=False, compare=False)
+
+
+@dataclass(frozen=True)
+class ServiceQueue:
+    """The ranked queue as of a data time, with how it was made."""
+
+    as_of: datetime
+    entries: tuple[QueueEntry, ...]
+    tolerance_pct: float
+    horizon_days: int
+    model_available: bool
+    settings_digest: str
+    software_version: str
+    warnings: tuple[str, ...] = ()
+
+    def frame(self) -> pd.DataFrame:
+        """The queue as a DataFrame (reasons joined by spaces)."""
+        return pd.DataFrame([{"rank": e.rank, "instrument_id": e.instrument_id, "region": e.region,
+                              "site_id": e.site_id, "p_breach": e.p_breach, "rank_low": e.rank_low,
+                              "rank_high": e.rank_high, "reasons": " ".join(e.reasons)} for e in self.entries],
+                            columns=["rank", "instrument_id", "region", "site_id", "p_breach", "rank_low",
+                                     "rank_high", "reasons"])
+
+
+def table_exists(con: duckdb.DuckDBPyConnection, name: str) -> bool:
+    return con.execute("SELECT count(*) FROM information_schema.tables WHERE table_name = $n",
+                       {"n": name}).fetchone()[0] > 0
+
+
+def tolerance_pct(settings: Settings) -> float:
+    """The default tolerance rule in percent at the queue's reference level."""
+    rules = settings.standards.tolerance_rules
+    rule = next((r for r in rules if not r.check_type and not r.level), rules[0])
+    return 100.0 * max(rule.relative, rule.absolute / settings.queue.reference_level)
+
+
+def default_as_of(con: duckdb.DuckDBPyConnection) -> datetime | None:
+    """The time of the latest check: the as-of time when none is given (never the wall clock)."""
+    value = query_df(con, "queries/queue_as_of")["as_of"].iloc[0]
+    return None if pd.isna(value) else pd.Timestamp(value).to_pydatetime()
+
+
+def shrink(estimates: np.ndarray, se: np.ndarray) -> tuple[np.ndarray, np.ndarray, float, float]:
+    """Normal-normal empirical Bayes: posterior means and variances toward the precision-weighted mean.
+
+    Source: Efron & Morris (1975), "Data analysis using Stein's estimator and its generalizations",
+    JASA 70:311-319; between-unit variance by method of moments, floored at a small positive value.
+    Returns (posterior mean, posterior variance, fleet mean, between-unit variance).
+    """
+    ok = np.isfinite(estimates) & np.isfinite(se)
+    if ok.sum() < 3:
+        return estimates, se ** 2, float(np.nanmean(estimates)) if ok.any() else 0.0, float("nan")
+    e, s2 = estimates[ok], se[ok] ** 2
+    mean = float(np.mean(e))
+    tau2 = max(float(np.var(e, ddof=1) - np.mean(s2)), 1e-6 * max(float(np.var(e, ddof=1)), 1e-12))
+    w = tau2 / (tau2 + se ** 2)
+    post = np.where(ok, mean + w * (estimates - mean), mean)
+    post_var = np.where(ok, w * se ** 2, tau2)
+    return post, post_var, mean, tau2
+
+
+def _days(a, b) -> float:
+    if a is None or b is None or pd.isna(a) or pd.isna(b):
+        return math.nan
+    return (pd.Timestamp(a) - pd.Timestamp(b)).total_seconds() / 86400.0
+
+
+def build_service_queue(con: duckdb.DuckDBPyConnection, settings: Settings,
+                        as_of: datetime | None = None) -> ServiceQueue:
+    """Rank every instrument by its probability of breaching tolerance before its next visit.
+
+    Parameters:
+        con: a connection (a reader's snapshot is fine; writers sync standards settings first).
+        settings: program settings; the queue section weighs the evidence.
+        as_of: UTC data time; default the latest check.
+    Returns:
+        ServiceQueue with entries in rank order.
+    Source: see the module docstring (Montgomery & Runger 11-6; Efron & Morris 1975; Laney 2002).
+    """
+    q: QueueSettings = settings.queue
+    warnings: list[str] = []
+    if as_of is None:
+        as_of = default_as_of(con)
+    if as_of is None:
+        return ServiceQueue(datetime(1970, 1, 1), (), tolerance_pct(settings), q.horizon_days, False,
+                            settings.digest(), __version__, ("no checks in the database",))
+    as_of = pd.Timestamp(as_of).to_pydatetime()
+    tol = tolerance_pct(settings)
+    units = query_df(con, "queries/queue_units", as_of=as_of, rate_days=q.rate_window_days)
+    model_ok = table_exists(con, "unit_estimates") and table_exists(con, "model_fits")
+    if model_ok:
+        est = query_df(con, "queries/queue_estimates", as_of=as_of)
+        vc = query_df(con, "queries/queue_variance", as_of=as_of)
+        lots = query_df(con, "queries/queue_lots_used", as_of=as_of, window_days=q.lot_window_days)
+        recent = query_df(con, "queries/queue_recent_checks", as_of=as_of)
+        if est.empty:
+            warnings.append("no converged fleet model fit: forecasts use the fleet prior only")
+            model_ok = False
+    else:
+        est = pd.DataFrame(columns=["instrument_id"])
+        vc = pd.DataFrame(columns=["component", "variance"])
+        lots = pd.DataFrame(columns=["instrument_id", "lot_id", "n_checks", "lot_verdict", "lot_effect_pct"])
+        recent = pd.DataFrame(columns=["instrument_id", "verdict", "relative_error", "lot_id", "lot_verdict",
+                                       "lot_effect_pct", "level"])
+        warnings.append("fleet model tables missing: forecasts unavailable")
+    signals = (query_df(con, "queries/queue_signals", as_of=as_of, window_days=q.signal_window_days)
+               if table_exists(con, "chart_signals") else pd.DataFrame(columns=["instrument_id"]))
+    if not table_exists(con, "chart_signals"):
+        warnings.append("chart signals missing: signal evidence unavailable")
+
+    df = units.merge(est, on="instrument_id", how="left") if not est.empty else units.assign(
+        bias_pct=np.nan, bias_ci_low_pct=np.nan, bias_ci_high_pct=np.nan, drift_pct_per_30d=np.nan,
+        drift_ci_low=np.nan, drift_ci_high=np.nan, bias_drift_cov=0.0, reference_at=pd.NaT, model_n_checks=0)
+    n = len(df)
+    if n == 0:
+        return ServiceQueue(as_of, (), tol, q.horizon_days, model_ok, settings.digest(), __version__,
+                            tuple(warnings + ["no instruments"]))
+
+    # --- predictive distribution, shrunk toward the fleet --------------------------------------
+    b = df["bias_pct"].to_numpy(float)
+    se_b = ((df["bias_ci_high_pct"] - df["bias_ci_low_pct"]) / (2 * Z95)).to_numpy(float)
+    d = df["drift_pct_per_30d"].to_numpy(float)
+    se_d = ((df["drift_ci_high"] - df["drift_ci_low"]) / (2 * Z95)).to_numpy(float)
+    cov = df["bias_drift_cov"].fillna(0.0).to_numpy(float)
+    if q.shrink_to_fleet:
+        b_post, vb_post, b_mean, tau2_b = shrink(b, se_b)
+        d_post, vd_post, d_mean, tau2_d = shrink(d, se_d)
+        wb = np.where(se_b > 0, vb_post / np.where(se_b > 0, se_b ** 2, 1), 1.0)
+        wd = np.where(se_d > 0, vd_post / np.where(se_d > 0, se_d ** 2, 1), 1.0)
+        cov_post = np.where(np.isfinite(b) & np.isfinite(d), cov * wb * wd, 0.0)
+    else:
+        b_post, vb_post, d_post, vd_post, cov_post = b, se_b ** 2, d, se_d ** 2, cov
+        b_mean = d_mean = tau2_b = tau2_d = math.nan
+    comp = dict(zip(vc["component"], vc["variance"])) if not vc.empty else {}
+    rep = [v for k, v in comp.items() if str(k).startswith("repeatability") and pd.notna(v)]
+    residual_var = float(np.median(rep)) if rep else 0.0
+    lot_var = float(comp.get("between_lots") or 0.0) if pd.notna(comp.get("between_lots", 0.0)) else 0.0
+    extra_var = residual_var + lot_var
+    # Days from the reference time to the next visit: horizon after the data time.
+    ref = pd.to_datetime(df["reference_at"]) if "reference_at" in df else pd.Series(pd.NaT, index=df.index)
+    lag = np.array([max(_days(as_of, r), 0.0) if pd.notna(r) else 0.0 for r in ref])
+    h = lag + q.horizon_days
+    mean_h = b_post + d_post * h / 30
+    var_param = vb_post + (h / 30) ** 2 * vd_post + 2 * (h / 30) * cov_post
+    sd_h = np.sqrt(np.maximum(var_param + extra_var, 1e-12))
+    p_forecast = np.nan_to_num(breach_probability(mean_h, sd_h, tol), nan=0.0)
+
+    # --- other evidence ----------------------------------------------------------------------
+    chart = laney_p_chart(df["n_aborted_invalid"].to_numpy(float), df["n_recent"].to_numpy(float))
+    lots_by_unit = {k: g for k, g in lots.groupby("instrument_id")} if not lots.empty else {}
+    recent_by_unit = {k: g for k, g in recent.groupby("instrument_id")} if not recent.empty else {}
+    sig_by_unit = {k: g for k, g in signals.groupby("instrument_id")} if not signals.empty else {}
+
+    p_other = np.zeros(n)
+    p_explained = np.zeros(n)
+    reasons_all, evidence_all = [], []
+    for i, row in enumerate(df.itertuples(index=False)):
+        uid = row.instrument_id
+        reasons: list[str] = []
+        causes: list[float] = []
+        explained: list[float] = []
+        ev: dict = {"p_forecast": round(float(p_forecast[i]), 6)}
+        # lot verdicts that could explain the readings
+        off_lots = []
+        lg = lots_by_unit.get(uid)
+        if lg is not None:
+            off_lots = [(r.lot_id, float(r.lot_effect_pct)) for r in lg.itertuples()
+                        if r.lot_verdict == "off" and pd.notna(r.lot_effect_pct)]
+
+        def explained_by_lot(direction: float) -> tuple[str, float] | None:
+            for lot_id, eff in off_lots:
+                if direction == 0 or np.sign(eff) == np.sign(direction):
+                    return lot_id, eff
+            return None
+
+        # forecast
+        if np.isfinite(b[i]):
+            fc = forecast_bias(float(b_post[i]), float(d_post[i]), float(vb_post[i]), float(vd_post[i]),
+                               float(cov_post[i]), extra_var, tol, float(h[i]))
+            ev.update(bias_pct=round(float(b[i]), 4), bias_shrunk_pct=round(float(b_post[i]), 4),
+                      drift_pct_per_30d=round(float(d[i]), 4), drift_shrunk_pct_per_30d=round(float(d_post[i]), 4),
+                      days_to_tolerance=fc.days_to_tolerance, days_to_tolerance_low=fc.days_to_tolerance_low,
+                      days_to_tolerance_high=fc.days_to_tolerance_high)
+            if p_forecast[i] >= 0.01:
+                reasons.append(f"Forecast bias {mean_h[i]:+.1f} % (sd {sd_h[i]:.1f} %) at the next visit in "
+                               f"{q.horizon_days} days against a tolerance of {tol:.2f} %: "
+                               f"{100 * p_forecast[i]:.0f} % chance of breach.")
+            if math.isfinite(fc.days_to_tolerance_low) and fc.days_to_tolerance_low <= 365:
+                high = ("never within 10 years" if math.isinf(fc.days_to_tolerance_high)
+                        else f"{fc.days_to_tolerance_high:.0f}")
+                est_txt = "not on the mean line" if math.isinf(fc.days_to_tolerance) else f"{fc.days_to_tolerance:.0f}"
+                reasons.append(f"Drift {d[i]:+.2f} % per 30 days; days to tolerance {est_txt} "
+                               f"(95 % prediction interval {fc.days_to_tolerance_low:.0f} to {high}).")
+        else:
+            ev["bias_pct"] = None
+            reasons.append("No model estimate for this unit; its forecast is the fleet average.")
+        # out of tolerance now
+        rg = recent_by_unit.get(uid)
+        if rg is not None:
+            fails = rg[rg["verdict"] == "fail"]
+            if len(fails):
+                worst = fails.loc[fails["relative_error"].abs().idxmax()]
+                lot_ex = explained_by_lot(float(worst["relative_error"]))
+                ev.update(out_of_tolerance=int(len(fails)), worst_error_pct=round(100 * float(worst["relative_error"]), 3))
+                if lot_ex and worst["lot_id"] == lot_ex[0]:
+                    explained.append(q.p_out_of_tolerance)
+                    causes.append(q.p_out_of_tolerance * q.lot_explained_factor)
+                    reasons.append(f"{len(fails)} check(s) on its last day out of tolerance (worst "
+                                   f"{100 * worst['relative_error']:+.1f} %), on lot {lot_ex[0]}, which the fleet "
+                                   f"model finds off by {lot_ex[1]:+.1f} %: the lot, not the unit, is the likely cause.")
+                else:
+                    causes.append(q.p_out_of_tolerance)
+                    reasons.append(f"{len(fails)} check(s) on its last day out of tolerance "
+                                   f"(worst {100 * worst['relative_error']:+.1f} %).")
+        # chart signals
+        sg = sig_by_unit.get(uid)
+        if sg is not None and len(sg):
+            ev["signals"] = int(len(sg))
+            for s in sg.itertuples():
+                p = q.p_signal_fleet if bool(s.fleet_significant) else q.p_signal_local
+                lot_ex = explained_by_lot(1.0 if s.direction == "up" else -1.0)
+                impact = f", {int(s.impact_checks)} checks since onset" if pd.notna(s.impact_checks) else ""
+                onset = f" from {pd.Timestamp(s.onset_at):%Y-%m-%d}" if pd.notna(s.onset_at) else ""
+                text = (f"{s.chart.upper()} signal ({s.rule}, {s.direction}) on {pd.Timestamp(s.measured_at):%Y-%m-%d} "
+                        f"at level {s.level:.3f}{onset}{impact}")
+                if lot_ex:
+                    explained.append(p)
+                    causes.append(p * q.lot_explained_factor)
+                    reasons.append(f"{text}; in the direction of lot {lot_ex[0]} ({lot_ex[1]:+.1f} %).")
+                else:
+                    causes.append(p)
+                    reasons.append(text + ".")
+        # calibration
+        since_cal = _days(as_of, row.last_calibration_at)
+        ev["days_since_calibration"] = None if math.isnan(since_cal) else round(since_cal, 1)
+        if math.isfinite(since_cal) and since_cal + q.horizon_days > q.calibration_interval_days:
+            causes.append(q.p_calibration_overdue)
+            reasons.append(f"Last calibration {since_cal:.0f} days ago; the interval is "
+                           f"{q.calibration_interval_days} days.")
+        # silence
+        silent_days = _days(as_of, row.last_check_at)
+        site_days = _days(as_of, row.site_last_check_at)
+        if (math.isfinite(silent_days) and silent_days >= q.silence_days and math.isfinite(site_days)
+                and site_days < q.silence_days):
+            ev["silent_days"] = round(silent_days, 1)
+            causes.append(q.p_silent)
+            reasons.append(f"No checks for {silent_days:.0f} days while other units at site {row.site_id} report.")
+        # aborted / invalid
+        if chart.above[i]:
+            ev.update(aborted_invalid=int(row.n_aborted_invalid), aborted_invalid_checks=int(row.n_recent),
+                      laney_ucl=round(chart.ucl[i], 5))
+            causes.append(q.p_attribute)
+            reasons.append(f"{int(row.n_aborted_invalid)} of {int(row.n_recent)} checks aborted or invalid in "
+                           f"{q.rate_window_days} days ({100 * chart.proportions[i]:.1f} %, fleet "
+                           f"{100 * chart.p_bar:.1f} %, Laney p' limit {100 * chart.ucl[i]:.1f} %).")
+        if off_lots:
+            ev["off_lots"] = [lot for lot, _ in off_lots]
+        p_other[i] = 1 - np.prod([1 - c for c in causes]) if causes else 0.0
+        p_explained[i] = 1 - np.prod([1 - c for c in explained]) if explained else 0.0
+        ev["lot_explained"] = bool(explained)
+        ev["n_checks"] = int(row.n_checks)
+        reasons_all.append(reasons)
+        evidence_all.append(ev)
+
+    p_total = 1 - (1 - p_forecast) * (1 - p_other)
+
+    # --- ranks and their uncertainty --------------------------------------------------------
+    ids = df["instrument_id"].to_numpy(str)
+    order = np.lexsort((ids, -p_total))
+    rank = np.empty(n, dtype=int)
+    rank[order] = np.arange(1, n + 1)
+    rng = np.random.default_rng(q.rank_seed)
+    S = max(int(q.rank_simulations), 1)
+    zb = rng.standard_normal((S, n))
+    zd = rng.standard_normal((S, n))
+    sb, sd_ = np.sqrt(np.maximum(vb_post, 0)), np.sqrt(np.maximum(vd_post, 0))
+    rho = np.clip(np.where(sb * sd_ > 0, cov_post / np.where(sb * sd_ > 0, sb * sd_, 1), 0), -0.99, 0.99)
+    bb = np.nan_to_num(b_post) + sb * zb
+    dd = np.nan_to_num(d_post) + sd_ * (rho * zb + np.sqrt(1 - rho ** 2) * zd)
+    ps = breach_probability(bb + dd * h / 30, np.sqrt(max(extra_var, 1e-12)) * np.ones(n), tol)
+    ps = 1 - (1 - ps) * (1 - p_other)
+    sim_rank = (-ps).argsort(axis=1, kind="stable").argsort(axis=1, kind="stable") + 1
+    rank_low = np.percentile(sim_rank, 5, axis=0, method="lower").astype(int)
+    rank_high = np.percentile(sim_rank, 95, axis=0, method="higher").astype(int)
+    rank_low = np.minimum(rank_low, rank)
+    rank_high = np.maximum(rank_high, rank)
+
+    entries = []
+    for i in order:
+        ev = evidence_all[i]
+        ev.update(p_breach=round(float(p_total[i]), 6), p_other=round(float(p_other[i]), 6))
+        reasons = reasons_all[i] or ["No evidence of a problem."]
+        entries.append(QueueEntry(int(rank[i]), str(ids[i]), _opt(df["region"].iloc[i]), _opt(df["site_id"].iloc[i]),
+                                  float(p_total[i]), int(rank_low[i]), int(rank_high[i]), tuple(reasons), ev))
+    warnings.extend(chart.warnings)
+    return ServiceQueue(as_of, tuple(entries), tol, q.horizon_days, model_ok, settings.digest(), __version__,
+                        tuple(warnings))
+
+
+def _opt(v):
+    return None if v is None or pd.isna(v) else str(v)
+
+
+def _json_default(v):
+    if isinstance(v, float) and not math.isfinite(v):
+        return None
+    if isinstance(v, (np.integer,)):
+        return int(v)
+    if isinstance(v, (np.floating,)):
+        return float(v)
+    return str(v)
+
+
+def evidence_json(ev: dict) -> str:
+    clean = {k: (None if isinstance(v, float) and not math.isfinite(v) else v) for k, v in ev.items()}
+    return json.dumps(clean, sort_keys=True, default=_json_default)
+
+
+def store_service_queue(con: duckdb.DuckDBPyConnection, queue: ServiceQueue) -> int:
+    """Replace the stored queue computed at the same as-of time; returns rows written."""
+    rows = pd.DataFrame({
+        "computed_at": [queue.as_of] * len(queue.entries),
+        "instrument_id": [e.instrument_id for e in queue.entries],
+        "rank": [e.rank for e in queue.entries],
+        "p_breach": [e.p_breach for e in queue.entries],
+        "rank_low": [e.rank_low for e in queue.entries],
+        "rank_high": [e.rank_high for e in queue.entries],
+        "reasons": [json.dumps(list(e.reasons)) for e in queue.entries],
+        "evidence": [evidence_json({**e.evidence, "settings_digest": queue.settings_digest,
+                                    "software_version": queue.software_version}) for e in queue.entries],
+    })
+    con.execute("BEGIN TRANSACTION")
+    try:
+        con.execute("DELETE FROM service_queue WHERE computed_at = $t", {"t": queue.as_of})
+        con.register("_queue_rows", rows)
+        con.execute("INSERT INTO service_queue (computed_at, instrument_id, rank, p_breach, rank_low, rank_high, "
+                    "reasons, evidence) SELECT computed_at, instrument_id, rank, p_breach, rank_low, rank_high, "
+                    "reasons, evidence FROM _queue_rows")
+        con.unregister("_queue_rows")
+        con.execute("COMMIT")
+    except duckdb.Error:
+        con.execute("ROLLBACK")
+        raise
+    return len(rows)
