@@ -124,6 +124,8 @@ def _fit_window(con, settings: Settings, fitted_at, started, window_start, windo
         "response": "100 * relative_error (percent)",
         "time_unit_days": 30, "depletion_unit_checks": 100,
         "fixed_slope_t_pct_per_30d": fixed.get("t"), "fixed_slope_d_pct_per_100_checks": fixed.get("d"),
+        "fixed_se": {name: float(np.sqrt(v)) for name, v in zip(fit.fixed_names[len(lot_ids):],
+                                                                np.diag(fit.fixed_cov)[len(lot_ids):])},
         "theta": [float(x) for x in fit.theta], "neg2_reml": fit.neg2_reml, "iterations": fit.iterations,
         "residual_groups": list(map(str, groups)), "n_cells": int(len(cells)),
     }
