@@ -1,0 +1,86 @@
+"""Frozen, versioned chart baselines: fleet pooled sigma, the unit's own estimate, re-baselines.
+
+A chart segment (unit, level, baseline period) starts at a calibration or sensor replacement
+(or a recorded re-baseline). Version 1 of its baseline is frozen at the first check: centre 0
+(the calibrated target) with the fleet's pooled repeatability sigma for the unit's technology,
+standard kind and level (short-run Q statistics, see short_run.py). Version 2 is frozen once
+the segment has `own_baseline_min_checks` checks: centre = their mean, sigma = their MR-bar/d2.
+Neither changes as later data arrive; limits never quietly widen.
+"""
+
+from __future__ import annotations
+
+from datetime import UTC, datetime
+
+import duckdb
+import numpy as np
+import pandas as pd
+
+from pipeline.charts.constants import shewhart_constants
+from pipeline.charts.grouping import group_starts, grouped_lag
+
+POOLED_METHOD = "pooled MR-bar / d2(2) over consecutive checks of each unit segment (Montgomery 6.4)"
+
+
+def pooled_sigma(frame: pd.DataFrame, min_pairs: int = 30) -> pd.DataFrame:
+    """Pooled repeatability per technology, standard kind and level from consecutive checks.
+
+    frame: columns technology, standard_kind, level, gid (segment code), relative_error, sorted by gid then time.
+    Returns one row per key: technology, standard_kind, level, sigma, n_pairs. Keys with fewer than
+    `min_pairs` moving ranges take the median sigma of their technology (or of the fleet).
+    """
+    starts = group_starts(frame["gid"].to_numpy())
+    x = frame["relative_error"].to_numpy(dtype=float)
+    mr = np.abs(x - grouped_lag(x, starts, 1))
+    d2 = shewhart_constants(2).d2
+    tmp = frame[["technology", "standard_kind", "level"]].assign(mr=mr).dropna(subset=["mr"])
+    out = (tmp.groupby(["technology", "standard_kind", "level"], as_index=False)
+           .agg(mr_bar=("mr", "mean"), n_pairs=("mr", "size")))
+    out["sigma"] = out["mr_bar"] / d2
+    keys = frame[["technology", "standard_kind", "level"]].drop_duplicates()
+    out = keys.merge(out, how="left", on=["technology", "standard_kind", "level"])
+    out["n_pairs"] = out["n_pairs"].fillna(0).astype("int64")
+    good = out[(out["n_pairs"] >= min_pairs) & (out["sigma"] > 0)]
+    fleet = float(good["sigma"].median()) if len(good) else 0.02
+    by_tech = good.groupby("technology")["sigma"].median()
+    weak = (out["n_pairs"] < min_pairs) | ~(out["sigma"] > 0)
+    if weak.any():
+        out.loc[weak, "sigma"] = out.loc[weak, "technology"].map(by_tech).fillna(fleet).to_numpy(dtype=float)
+    return out[["technology", "standard_kind", "level", "sigma", "n_pairs"]].reset_index(drop=True)
+
+
+def own_estimates(x: np.ndarray, starts: np.ndarray, pos: np.ndarray, n_min: int) -> pd.DataFrame:
+    """The unit's own centre and sigma from the first n_min checks of each group that has them.
+
+    Returns rows: group (0-based group number), center, sigma (MR-bar / d2), row of the n_min-th check.
+    Source: Montgomery 6.4, individuals chart phase I estimates.
+    """
+    gid = np.cumsum(starts) - 1
+    first = pos < n_min
+    mr = np.abs(x - grouped_lag(x, starts, 1))
+    df = pd.DataFrame({"g": gid[first], "x": x[first], "mr": mr[first]})
+    agg = df.groupby("g").agg(n=("x", "size"), center=("x", "mean"), mr_bar=("mr", "mean"))
+    agg = agg[agg["n"] >= n_min]
+    agg["sigma"] = agg["mr_bar"] / shewhart_constants(2).d2
+    rows = np.flatnonzero(pos == n_min - 1)
+    agg["row"] = pd.Series(rows, index=gid[rows]).reindex(agg.index)
+    return agg.reset_index().rename(columns={"g": "group"})[["group", "center", "sigma", "row"]]
+
+
+def record_rebaseline(con: duckdb.DuckDBPyConnection, instrument_id: str, rebaseline_at: datetime,
+                      reason: str, recorded_by: str | None = None) -> None:
+    """Record an explicit re-baseline of a unit's charts from `rebaseline_at` (UTC) with its reason.
+
+    Checks already charted after that time are charted again on the next analyse run.
+    Raises ValueError when the reason is empty.
+    """
+    if not reason or not reason.strip():
+        raise ValueError("a re-baseline needs a reason (it is recorded with the baseline)")
+    con.execute("INSERT INTO chart_rebaselines VALUES ($i, $at, $reason, $now, $by)",
+                {"i": instrument_id, "at": rebaseline_at, "reason": reason.strip(),
+                 "now": datetime.now(UTC).replace(tzinfo=None), "by": recorded_by})
+    for table in ("chart_points", "chart_signals"):
+        con.execute(f"DELETE FROM {table} WHERE instrument_id = $i AND measured_at >= $at",  # noqa: S608
+                    {"i": instrument_id, "at": rebaseline_at})
+    con.execute("DELETE FROM chart_state WHERE instrument_id = $i AND last_measured_at >= $at",
+                {"i": instrument_id, "at": rebaseline_at})

@@ -1,0 +1,121 @@
+"""analyse_fleet: stored tables, incremental == full recompute, frozen baselines, signals."""
+
+from __future__ import annotations
+
+import duckdb
+import numpy as np
+import pandas as pd
+import pytest
+
+from pipeline.charts.analyse import analyse_fleet
+from pipeline.db import migrate
+from pipeline.settings import Settings
+
+COLUMNS = ["check_id", "instrument_id", "measured_at", "lot_id", "check_type", "target", "measured", "units",
+           "simulator_temp_c", "pressure_kpa", "site_id", "operator_id", "outcome", "file_id", "line"]
+
+
+def fleet_checks(n_units: int = 30, n: int = 80, seed: int = 1, shift_unit: int = 0) -> pd.DataFrame:
+    """Invented fleet: control checks at 0.080 every 12 h, 1 % repeatability, one unit shifting +3 % late."""
+    rng = np.random.default_rng(seed)
+    u = np.repeat(np.arange(n_units), n)
+    j = np.tile(np.arange(n), n_units)
+    rel = 0.01 * rng.standard_normal(len(u)) + np.where((u == shift_unit) & (j > 50), 0.03, 0.0)
+    return pd.DataFrame({
+        "check_id": np.arange(1, len(u) + 1), "instrument_id": [f"U{i:03d}" for i in u],
+        "measured_at": pd.Timestamp("2025-01-01") + pd.to_timedelta(12 * j, unit="h"), "lot_id": "L1",
+        "check_type": "control", "target": 0.08, "measured": np.floor(0.08 * (1 + rel) * 1000) / 1000,
+        "units": "g/210L", "simulator_temp_c": None, "pressure_kpa": 101.325, "site_id": "S1", "operator_id": None,
+        "outcome": "pass", "file_id": 1, "line": np.arange(1, len(u) + 1)})[COLUMNS]
+
+
+def make_db(checks: pd.DataFrame) -> duckdb.DuckDBPyConnection:
+    con = duckdb.connect(":memory:")
+    migrate(con)
+    units = checks["instrument_id"].unique()
+    con.register("u", pd.DataFrame({"instrument_id": units}))
+    con.execute("INSERT INTO instruments (instrument_id, technology, model, site_id, region) "
+                "SELECT instrument_id, 'fuel_cell', 'M1', 'S1', 'R1' FROM u")
+    con.execute("INSERT INTO lots VALUES ('L1', 'dry_gas', 0.08, 'g/210L', 0.001, '2020-01-01', '2030-01-01', 'x')")
+    add_checks(con, checks)
+    return con
+
+
+def add_checks(con, checks: pd.DataFrame) -> None:
+    con.register("c", checks)
+    con.execute("INSERT INTO checks SELECT * FROM c")
+    con.unregister("c")
+
+
+POINT_COLS = ["check_id", "position", "z", "moving_range", "cusum_upper", "cusum_lower", "ewma", "ewma_lcl",
+              "ewma_ucl", "center", "sigma", "cusum_upper_run", "cusum_lower_run"]
+
+
+def points(con) -> pd.DataFrame:
+    return con.execute(f"SELECT {', '.join(POINT_COLS)} FROM chart_points ORDER BY check_id").df()
+
+
+def test_analyse_stores_points_baselines_and_signals():
+    checks = fleet_checks()
+    con = make_db(checks)
+    run = analyse_fleet(con, Settings())
+    assert run.mode == "full" and run.n_new_checks == len(checks)
+    assert con.execute("SELECT count(*) FROM chart_points").fetchone()[0] == len(checks)
+    # two versions per segment: fleet pooled at the first check, the unit's own after 20 checks
+    got = con.execute("SELECT version, sigma_source, count(*) FROM chart_baselines GROUP BY ALL ORDER BY 1").fetchall()
+    assert got == [(1, "fleet_pooled", 30), (2, "unit", 30)]
+    # the shifted unit raises an upper CUSUM signal with an onset and an impact window
+    sig = con.execute("SELECT * FROM chart_signals WHERE instrument_id = 'U000' AND chart = 'cusum'").df()
+    assert (sig["direction"] == "up").any()
+    shift_at = pd.Timestamp("2025-01-01") + pd.Timedelta(hours=12 * 51)
+    first = sig[sig["measured_at"] >= shift_at].sort_values("measured_at").iloc[0]
+    assert first["onset_at"] <= first["measured_at"] and first["impact_checks"] >= 1
+    assert first["onset_at"] >= shift_at - pd.Timedelta(hours=12 * 6)
+
+
+def seed_pooled(con, sigma=0.01):
+    # the pooled sigma is frozen at the first run; give both databases the same one
+    con.execute("INSERT INTO chart_pooled_sigma VALUES ('fuel_cell', 'dry_gas', 0.08, $s, 100, now(), 'test')",
+                {"s": sigma})
+
+
+def test_incremental_equals_full_recompute():
+    checks = fleet_checks(n=70, seed=3)
+    full = make_db(checks)
+    seed_pooled(full)
+    analyse_fleet(full, Settings())
+    inc = make_db(checks[checks["measured_at"] < pd.Timestamp("2025-01-08")])
+    seed_pooled(inc)
+    analyse_fleet(inc, Settings())
+    add_checks(inc, checks[(checks["measured_at"] >= pd.Timestamp("2025-01-08"))
+                           & (checks["measured_at"] < pd.Timestamp("2025-01-20"))])
+    analyse_fleet(inc, Settings())
+    add_checks(inc, checks[checks["measured_at"] >= pd.Timestamp("2025-01-20")])
+    run = analyse_fleet(inc, Settings())
+    assert run.mode == "incremental"
+    a, b = points(full), points(inc)
+    pd.testing.assert_frame_equal(a, b, check_exact=False, rtol=1e-9, atol=1e-12)
+    sa = full.execute("SELECT check_id, chart, rule, direction FROM chart_signals ORDER BY ALL").fetchall()
+    sb = inc.execute("SELECT check_id, chart, rule, direction FROM chart_signals ORDER BY ALL").fetchall()
+    assert sa == sb
+
+
+def test_baseline_frozen_when_later_data_arrive():
+    checks = fleet_checks(n=60, seed=5)
+    con = make_db(checks[checks["measured_at"] < pd.Timestamp("2025-01-20")])
+    analyse_fleet(con, Settings())
+    before = con.execute("SELECT * FROM chart_baselines ORDER BY baseline_id").df()
+    later = checks[checks["measured_at"] >= pd.Timestamp("2025-01-20")].copy()
+    later["measured"] = later["measured"] * 1.05  # very different later data
+    add_checks(con, later)
+    analyse_fleet(con, Settings())
+    after = con.execute("SELECT * FROM chart_baselines ORDER BY baseline_id").df()
+    pd.testing.assert_frame_equal(before, after.iloc[:len(before)].reset_index(drop=True))
+    assert len(after) == len(before)
+
+
+def test_nothing_new_is_a_noop():
+    con = make_db(fleet_checks(n_units=5, n=30))
+    analyse_fleet(con, Settings())
+    run = analyse_fleet(con, Settings())
+    assert run.n_new_checks == 0 and run.n_signals == 0
