@@ -123,6 +123,8 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
         sigma = np.where(np.isnan(sigma), fill_s, sigma)
     use_own = (position > n_min) & np.isfinite(sigma) & (sigma > 0)
     z = np.where(use_own, (x - center) / np.where(use_own, sigma, 1.0), q)
+    # Coarse (truncated) results tie often: cumulative-sum noise must not put a tie on one side.
+    z = np.round(z, 9)
     if "z" in frame:
         z = np.where(old, frame["z"].to_numpy(dtype=float, na_value=np.nan), z)
     center_out = np.where(use_own, center, q_center)
