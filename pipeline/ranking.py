@@ -241,7 +241,8 @@ def build_service_queue(con: duckdb.DuckDBPyConnection, settings: Settings,
                                f"(95 % prediction interval {fc.days_to_tolerance_low:.0f} to {high}).")
         else:
             ev["bias_pct"] = None
-            reasons.append("No model estimate for this unit; its forecast is the fleet average.")
+            if model_ok:
+                reasons.append("No model estimate for this unit; its forecast is the fleet average.")
         # out of tolerance now
         rg = recent_by_unit.get(uid)
         if rg is not None:
