@@ -147,7 +147,7 @@ def _fit_window(con, settings: Settings, fitted_at, started, window_start, windo
             diagnostics=tuple(diags), fixed_effects=fixed)
     lots = _lot_effects(fit, cells, lot_ids, ms)
     units = _unit_estimates(fit, cells, subjects, ms)
-    sample = query_df(con, "queries/model_sample", sample_size=int(ms.diagnostics_sample))
+    sample = query_df(con, "queries/model_sample", share=min(1.0, ms.diagnostics_sample / max(n_checks, 1)))
     adj, var = _adjust(sample, fit, subjects, lot_ids, groups, include_lot=True)
     z = adj / np.sqrt(np.asarray(fit.residual_var)[sample["residual_group"].map(
         {g: i for i, g in enumerate(groups)}).to_numpy()])

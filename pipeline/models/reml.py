@@ -95,46 +95,63 @@ class _Problem:
                                     shape=(self.p, 2 * n_subjects))
         self.f_order = pattern.data.astype(np.int64) - 1       # csr slot -> flat (entry, k)
         self.f_pattern = pattern
+        self._precompute()
+
+    def _by_group(self, index: np.ndarray, size: int, stats: tuple[str, ...]) -> dict[str, np.ndarray]:
+        """Sums of each statistic by (group, index), so a change of group weights is one small product."""
+        flat = self.group * size + index
+        G = self.n_groups
+        return {k: np.bincount(flat, self.s[k], G * size).reshape(G, size) for k in stats}
+
+    def _precompute(self) -> None:
+        N, K = self.n_subjects, self.n_lots
+        self.g_subject = self._by_group(self.subject, N, ("n", "st", "stt", "sy", "sty", "sd", "std"))
+        self.g_entry = self._by_group(self.entry_of_cell, self.n_lot_entries, ("n", "st"))
+        self.g_lot = self._by_group(self.lot, K, ("n", "st", "sd", "sy"))
+        self.g_total = {k: np.bincount(self.group, self.s[k], self.n_groups)
+                        for k in ("stt", "std", "sdd", "sty", "sdy", "syy")}
 
     def _weighted(self, log_r: np.ndarray):
-        w = np.exp(-log_r)[self.group]
-        s = {k: v * w for k, v in self.s.items()}
-        N = self.n_subjects
-        bc = np.bincount
-        a11, a12, a22 = (bc(self.subject, s["n"], N), bc(self.subject, s["st"], N),
-                         bc(self.subject, s["stt"], N))
-        u = np.stack([bc(self.subject, s["sy"], N), bc(self.subject, s["sty"], N)], axis=1)
+        w = np.exp(-log_r)
+        N, K = self.n_subjects, self.n_lots
+        gs = {k: w @ v for k, v in self.g_subject.items()}
+        tot = {k: float(w @ v) for k, v in self.g_total.items()}
+        a11, a12, a22 = gs["n"], gs["st"], gs["stt"]
+        u = np.stack([gs["sy"], gs["sty"]], axis=1)
         ne = len(self.ent_subject)
         b = np.zeros((ne, 2))
         nl = self.n_lot_entries
-        b[:nl, 0] = bc(self.entry_of_cell, s["n"], nl)
-        b[:nl, 1] = bc(self.entry_of_cell, s["st"], nl)
+        b[:nl, 0] = w @ self.g_entry["n"]
+        b[:nl, 1] = w @ self.g_entry["st"]
         off = nl
         if self.col_t >= 0:
             b[off:off + N, 0] = a12
             b[off:off + N, 1] = a22
             off += N
         if self.col_d >= 0:
-            b[off:off + N, 0] = bc(self.subject, s["sd"], N)
-            b[off:off + N, 1] = bc(self.subject, s["std"], N)
+            b[off:off + N, 0] = gs["sd"]
+            b[off:off + N, 1] = gs["std"]
+        gl = {k: w @ v for k, v in self.g_lot.items()}
         p = self.p
         C = np.zeros((p, p))
         v = np.zeros(p)
-        K = self.n_lots
-        C[np.arange(K), np.arange(K)] = bc(self.lot, s["n"], K)
-        v[:K] = bc(self.lot, s["sy"], K)
-        for col, lot_stat, own_pairs, ystat in ((self.col_t, "st", (("stt", self.col_t), ("std", self.col_d)), "sty"),
-                                                (self.col_d, "sd", (("sdd", self.col_d),), "sdy")):
-            if col < 0:
-                continue
-            C[:K, col] = C[col, :K] = bc(self.lot, s[lot_stat], K)
-            v[col] = s[ystat].sum()
-            for stat, other in own_pairs:
-                if other >= 0:
-                    C[col, other] = C[other, col] = s[stat].sum()
+        C[np.arange(K), np.arange(K)] = gl["n"]
+        v[:K] = gl["sy"]
+        ct, cd = self.col_t, self.col_d
+        if ct >= 0:
+            C[:K, ct] = C[ct, :K] = gl["st"]
+            v[ct] = tot["sty"]
+            C[ct, ct] = tot["stt"]
+        if cd >= 0:
+            C[:K, cd] = C[cd, :K] = gl["sd"]
+            v[cd] = tot["sdy"]
+            C[cd, cd] = tot["sdd"]
+        if ct >= 0 and cd >= 0:
+            C[ct, cd] = C[cd, ct] = tot["std"]
+        ywy = tot["syy"]
         A = np.empty((N, 2, 2))
         A[:, 0, 0], A[:, 0, 1], A[:, 1, 0], A[:, 1, 1] = a11, a12, a12, a22
-        return A, u, b, C, v, s["syy"].sum()
+        return A, u, b, C, v, ywy
 
     def gamma(self, theta: np.ndarray) -> np.ndarray:
         l11, l21, l22 = theta[:3] if self.random_slope else (theta[0], 0.0, 0.0)
