@@ -177,7 +177,8 @@ def build_scenario(instruments: int, months: int, seed: int, end: date) -> Scena
     unit_slope = np.where(unit_tech == 0, rng.normal(-0.002, 0.0015, n), rng.normal(0.0, 0.001, n))
     unit_depletion = rng.uniform(0.0002, 0.0005, n)
     unit_abort = np.full(n, 0.003)
-    unit_control = site_busy[unit_site] * rng.uniform(0.8, 1.2, n) * 1.45
+    unit_control = site_busy[unit_site] * rng.uniform(0.8, 1.2, n)
+    unit_control *= 1.45 / unit_control.mean()                 # ~80 checks per unit-month over the fleet
     unit_stop = np.full(n, t_end, dtype=np.int64)
 
     # planted faults: distinct established units ------------------------------------------
@@ -292,7 +293,8 @@ def build_scenario(instruments: int, months: int, seed: int, end: date) -> Scena
     # operators: opaque codes, a pool per site
     op_count = rng.integers(3, 13, n_sites)
     op_start = np.concatenate([[0], np.cumsum(op_count)[:-1]])
-    codes = rng.choice(np.arange(1000, 10000), int(op_count.sum()), replace=False)
+    pool = np.arange(1000, 10000) if op_count.sum() <= 4000 else np.arange(10000, 100000)
+    codes = rng.choice(pool, int(op_count.sum()), replace=False)
     operator_codes = np.array([f"OP-{c}" for c in codes])
 
     return Scenario(
