@@ -58,20 +58,28 @@ def cusum_h(baselines: pd.DataFrame | None, level: float) -> float | None:
     return None
 
 
-def forecast_sentence(forecast: pd.DataFrame, tolerance_pct: float) -> str:
-    """A plain sentence on when the projected bias reaches tolerance, read off the projection."""
-    outside = forecast[forecast["bias_pct"].abs() >= tolerance_pct]
-    near = forecast[(forecast["bias_pct"].abs() + 1.959964 * forecast["se_pct"]) >= tolerance_pct]
-    horizon = int(forecast["day"].max())
-    if not outside.empty:
-        first = outside.iloc[0]
-        return (f"If the present drift continues, the bias reaches the ±{tolerance_pct:g} % tolerance "
-                f"around **{pd.Timestamp(first['at']):%Y-%m-%d}** (day {int(first['day'])}).")
-    if not near.empty:
-        first = near.iloc[0]
-        return (f"The projected bias stays inside ±{tolerance_pct:g} % for {horizon} days, but its 95 % band "
-                f"reaches tolerance from about **{pd.Timestamp(first['at']):%Y-%m-%d}**.")
-    return f"The projected bias and its 95 % band stay inside ±{tolerance_pct:g} % for the next {horizon} days."
+def forecast_sentence(estimate: pd.Series, tolerance_pct: float, horizon_days: int) -> str:
+    """When the unit's mean bias reaches tolerance if its drift continues, from
+    pipeline.forecast.forecast_bias (parameter uncertainty of the fleet model only)."""
+    fn = _function("pipeline.forecast", "forecast_bias")
+    if fn is None:
+        return ""
+    se_b = (estimate["bias_ci_high_pct"] - estimate["bias_ci_low_pct"]) / (2 * 1.959964)
+    se_d = (estimate["drift_ci_high"] - estimate["drift_ci_low"]) / (2 * 1.959964)
+    cov = estimate.get("bias_drift_cov")
+    fc = fn(float(estimate["bias_pct"]), float(estimate["drift_pct_per_30d"]), float(se_b) ** 2, float(se_d) ** 2,
+            0.0 if pd.isna(cov) else float(cov), 0.0, tolerance_pct, float(horizon_days))
+    if fc.warnings:
+        return "No forecast: " + "; ".join(fc.warnings) + "."
+    ref = pd.Timestamp(estimate["reference_at"])
+
+    def when(days: float) -> str:
+        return "not within 10 years" if days == float("inf") else f"{ref + pd.Timedelta(days=days):%Y-%m-%d}"
+    if fc.days_to_tolerance == float("inf") and fc.days_to_tolerance_low == float("inf"):
+        return f"If the present drift continues, the bias stays inside ±{tolerance_pct:g} % (with its 95 % band)."
+    return (f"If the present drift continues, the bias reaches the ±{tolerance_pct:g} % tolerance around "
+            f"**{when(fc.days_to_tolerance)}** (95 % band: from {when(fc.days_to_tolerance_low)} to "
+            f"{when(fc.days_to_tolerance_high)}); P(outside tolerance) in {horizon_days} days: {fc.p_breach:.0%}.")
 
 
 @st.cache_data(max_entries=64, show_spinner=False)
@@ -130,9 +138,15 @@ def instrument_record(instrument_id: str, start: dt.date | None, end: dt.date | 
 def digest_preview(week: str):
     """Write this week's digest with pipeline.digest into a temporary folder and return
     a list of (file name, text or bytes); None when the digest step is not available."""
-    fn = _function("pipeline.digest", "write_digest")
-    if fn is None or loaders.data_token() is None:
+    token = loaders.data_token()
+    if _function("pipeline.digest", "write_digest") is None or token is None:
         return None
+    return _digest(token, week)
+
+
+@st.cache_data(max_entries=16, show_spinner=False)
+def _digest(token: loaders.DataToken, week: str):
+    fn = _function("pipeline.digest", "write_digest")
     with tempfile.TemporaryDirectory() as tmp, loaders.reader_connection() as con:
         fn(con, loaders.settings(), week, Path(tmp))
         files = []

@@ -1,4 +1,4 @@
-"""Digest: a preview of this week's digest as it would be mailed."""
+"""Digest: a preview of a week's digest as it would be mailed (pipeline.digest.write_digest)."""
 
 import datetime as dt
 
@@ -8,11 +8,14 @@ import streamlit as st
 from dashboard import frame, library
 
 rng = frame.header("Digest", "What will this week's digest tell administrators and coordinators?")
-end = pd.Timestamp(rng["last_check_at"]).date() if rng else dt.date.today()
+if rng is None:
+    frame.not_computed("Digest", "No checks are stored yet, so there is no week to report.")
+    st.stop()
+end = pd.Timestamp(rng["last_check_at"]).date()
 week_of = st.date_input("Week containing", value=end, key="digest_week")
-iso = week_of.isocalendar()
+iso = (week_of or dt.date.today()).isocalendar()
 week = f"{iso.year}-W{iso.week:02d}"
-st.caption(f"ISO week {week}")
+st.caption(f"ISO week {week} (Monday to Sunday, UTC)")
 try:
     files = library.digest_preview(week)
 except Exception as exc:  # noqa: BLE001 - show the reason, never a traceback
@@ -21,15 +24,15 @@ except Exception as exc:  # noqa: BLE001 - show the reason, never a traceback
 if not files:
     frame.not_computed("Digest", "The digest step has not been installed or wrote nothing.")
     st.stop()
-for name, content in files:
-    if isinstance(content, bytes):
-        st.download_button(f"Download {name}", content, file_name=name, key=f"digest_{name}")
-    elif name.endswith((".html", ".htm")):
-        with st.expander(f"{name} (HTML)", expanded=True):
-            st.html(content)
-    elif name.endswith(".md"):
-        with st.expander(name, expanded=True):
-            st.markdown(content)
+cols = st.columns(len(files))
+for col, (name, content) in zip(cols, files):
+    col.download_button(f"Download {name}", content, file_name=name, key=f"digest_{name}")
+html = next((c for n, c in files if n.endswith((".html", ".htm")) and isinstance(c, str)), None)
+text = next((c for n, c in files if n.endswith(".md") and isinstance(c, str)), None)
+with st.container(border=True):
+    if html is not None:
+        st.html(html)
+    elif text is not None:
+        st.markdown(text)
     else:
-        with st.expander(name, expanded=len(files) == 1):
-            st.code(content, language=None)
+        st.code(files[0][1] if isinstance(files[0][1], str) else "(binary)", language=None)

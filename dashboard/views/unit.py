@@ -94,7 +94,8 @@ else:
     forecast = loaders.load("dashboard_unit_forecast", instrument_id=unit_id,
                             horizon_days=loaders.settings().queue.calibration_interval_days)
     if not frame.missing(forecast):
-        st.markdown(library.forecast_sentence(forecast, loaders.tolerance_pct()))
+        st.markdown(library.forecast_sentence(last, loaders.tolerance_pct(),
+                                              loaders.settings().queue.calibration_interval_days))
         frame.chart(figures.forecast_chart(forecast, loaders.tolerance_pct()), key="unit_forecast")
 
 st.subheader("Uncertainty budget")
