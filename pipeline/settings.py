@@ -85,6 +85,7 @@ class ChartSettings:
     fleet_fdr_q: float = 0.05                # Benjamini-Hochberg q over each run's signals
     cusum_headstart: float = 0.0             # FIR headstart (sigma) at each segment start
     replicate_window_minutes: float = 10.0   # checks of one unit, level and type this close form an X-bar/S group
+    verification_window_minutes: float = 60.0  # verification checks of a unit this close form one linearity session
 
 
 @dataclass(frozen=True)

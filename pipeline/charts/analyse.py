@@ -25,6 +25,8 @@ from pipeline.charts.cusum import tabular_cusum
 from pipeline.charts.design import design_cusum, design_ewma
 from pipeline.charts.ewma import ewma
 from pipeline.charts.grouping import group_starts, position_in_group
+from pipeline.charts.linearity import fit_linearity
+from pipeline.charts.xbar_s import xbar_s_groups
 from pipeline.charts.individuals import moving_range, mr_ucl_standardised
 from pipeline.charts.run_rules import apply_run_rules, select_rules
 from pipeline.charts.signals import crossings, fleet_significance, impact_checks, signal_p_values
@@ -299,7 +301,24 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
                     "frozen_at, method FROM fresh")
         pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
     out = compute_charts(new, tail, state, own, pooled, params)
-    sig = out["signals"]
+    window = settings.charts.replicate_window_minutes
+    typed = out["points"][["check_id", "instrument_id", "level", "measured_at", "z", "position"]].merge(
+        new[["check_id", "check_type"]], on="check_id")
+    groups = xbar_s_groups(typed, window)
+    extra = []
+    if len(groups):
+        pos = typed.set_index("check_id")["position"]
+        for chart, stat, lo, hi in (("xbar", "xbar", "xbar_lcl", "xbar_ucl"), ("s", "s", "s_lcl", "s_ucl")):
+            hit = groups[(groups[stat] > groups[hi]) | (groups[stat] < groups[lo])]
+            if len(hit):
+                extra.append(hit[["instrument_id", "level", "check_id", "measured_at"]].assign(
+                    position=pos.reindex(hit["check_id"]).to_numpy(), chart=chart, rule="limit",
+                    direction=np.where(hit[stat] > hit[hi], "up", "down"), size=hit[stat].to_numpy(),
+                    onset_at=pd.NaT, onset_back=0))
+    sig = pd.concat([out["signals"], *extra], ignore_index=True) if extra else out["signals"]
+    ver = new[new["check_type"] == "verification"]
+    lin = fit_linearity(ver[["instrument_id", "measured_at", "expected", "measured", "level"]],
+                        settings.charts.verification_window_minutes)
     run_id = int(con.execute("SELECT coalesce(max(run_id), 0) + 1 FROM chart_runs").fetchall()[0][0])
     if len(sig):
         cs = settings.charts
@@ -314,6 +333,13 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
     bl = out["baselines"]
     bl = bl.assign(baseline_id=np.arange(first_b, first_b + len(bl)), parameters=json.dumps(params, default=str),
                    software_version=SOFTWARE_VERSION)
+    rb = (bl["version"] == 1) & (bl["baseline_period"] % 1000 != 0)
+    if rb.any():
+        con.register("_bf_rb", bl.loc[rb, ["instrument_id", "frozen_at"]].reset_index())
+        why = con.execute("SELECT b.index, r.reason FROM _bf_rb b ASOF JOIN chart_rebaselines r "
+                          "ON b.instrument_id = r.instrument_id AND b.frozen_at >= r.rebaseline_at").df()
+        con.unregister("_bf_rb")
+        bl.loc[why["index"].to_numpy(), "reason"] = ("rebaseline: " + why["reason"]).to_numpy()
     data_end = None if new.empty else pd.Timestamp(new["measured_at"].max()).to_pydatetime()
     st = out["state"]
     pts = out["points"]
@@ -336,6 +362,14 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
             con.register("_bf_sig", sig)
             con.execute("INSERT INTO chart_signals BY NAME SELECT * FROM _bf_sig")
             con.unregister("_bf_sig")
+        if len(groups):
+            con.register("_bf_groups", groups.assign(run_id=run_id))
+            con.execute("INSERT OR IGNORE INTO chart_groups BY NAME SELECT * FROM _bf_groups")
+            con.unregister("_bf_groups")
+        if len(lin):
+            con.register("_bf_lin", lin.assign(run_id=run_id))
+            con.execute("INSERT OR IGNORE INTO chart_linearity BY NAME SELECT * FROM _bf_lin")
+            con.unregister("_bf_lin")
         duration = time.perf_counter() - t0
         con.execute("INSERT INTO chart_runs VALUES ($id, $at, $d, $mode, $n, $g, $s, $b, $end, $p, $v)",
                     {"id": run_id, "at": started, "d": duration, "mode": mode, "n": len(pts), "g": len(st),

@@ -1,7 +1,7 @@
 -- name: charts_input
 -- One row: a check to chart (control, daily or verification; not aborted or invalid) not yet in
 -- chart_points, with its chart segment: baseline period x 1000 + re-baselines since the period began.
-SELECT r.check_id, r.instrument_id, r.level, r.measured_at, r.check_type, r.relative_error,
+SELECT r.check_id, r.instrument_id, r.level, r.measured_at, r.check_type, r.relative_error, r.expected, r.measured,
        coalesce(r.technology, 'unknown') AS technology, coalesce(r.standard_kind, 'unknown') AS standard_kind,
        r.baseline_period * 1000 + (SELECT count(*) FROM chart_rebaselines rb
                                   WHERE rb.instrument_id = r.instrument_id
