@@ -94,9 +94,10 @@ def simulate_month(sc: Scenario, month_start: date, month_index: int) -> dict[st
     site = sc.unit_site[unit]
     kind = sc.unit_kind[unit]
 
-    # lot: a pair per kind, level and quarter; the unit's variant alternates by quarter
+    # lot: a pair per kind, level and quarter; each unit alternates between the pair monthly,
+    # so lots and units are crossed (the fleet model needs that to tell them apart)
     q = np.full(rows, month_index // 3)
-    variant = (unit * 7 + q) % 2
+    variant = (unit * 7 + month_index) % 2
     lot = sc.lot_table[kind, level, q, variant]
     target = np.asarray(LEVELS)[level]
 

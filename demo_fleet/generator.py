@@ -107,8 +107,8 @@ def _planted_local_rows(sc: Scenario, month: date) -> list[tuple[list[str], str]
     for day, which in _dst_days(sc, zone):
         if (day.year, day.month) != (month.year, month.month):
             continue
-        q = ((day.year - sc.start.year) * 12 + day.month - sc.start.month) // 3
-        lot = sc.lots["lot_id"].iloc[sc.lot_table[kind, 1, q, (u * 7 + q) % 2]]
+        mi = (day.year - sc.start.year) * 12 + day.month - sc.start.month
+        lot = sc.lots["lot_id"].iloc[sc.lot_table[kind, 1, mi // 3, (u * 7 + mi) % 2]]
         times = ("02:12:40", "02:47:05") if which == "spring" else ("01:14:20", "01:41:55")
         reason = "nonexistent_local_time" if which == "spring" else "ambiguous_local_time"
         for i, hhmmss in enumerate(times):

@@ -174,7 +174,7 @@ def build_scenario(instruments: int, months: int, seed: int, end: date) -> Scena
     newcomers = rng.choice(n, max(1, n // 40), replace=False)
     in_service[newcomers] = t0 + (rng.uniform(0.15, 0.45, len(newcomers)) * span // DAY).astype(np.int64) * DAY
     unit_sd = rng.uniform(0.010, 0.015, n)
-    unit_slope = np.where(unit_tech == 0, rng.normal(-0.002, 0.0015, n), rng.normal(0.0, 0.001, n))
+    unit_slope = np.where(unit_tech == 0, rng.normal(-0.001, 0.001, n), rng.normal(0.0, 0.001, n))
     unit_depletion = rng.uniform(0.0002, 0.0005, n)
     unit_abort = np.full(n, 0.003)
     unit_control = site_busy[unit_site] * rng.uniform(0.8, 1.2, n)
