@@ -197,6 +197,17 @@ def test_data_quality_page(monkeypatch, fleet_db):
     assert samples and set(samples[0]["reason"]) == {"out_of_range"}
 
 
+def test_digest_preview_on_request(monkeypatch, fleet_db):
+    at = run_page(monkeypatch, fleet_db, "digest")
+    assert not at.exception
+    assert "ISO week 2026-W27" in " ".join(c.value for c in at.caption)
+    at.button(key="digest_build").click().run()
+    assert not at.exception, [e.value for e in at.exception]
+    assert not at.warning, [w.value for w in at.warning]
+    # the digest step writes html, md and txt; each is offered for download
+    assert len(at.get("download_button")) == 3
+
+
 def test_okabe_ito_palette_marks_states():
     # Okabe M, Ito K (2008) Color Universal Design: the eight colours, vermillion #D55E00, blue #0072B2
     assert figures.STATE_COLOURS["out of tolerance"] == "#D55E00"

@@ -16,8 +16,15 @@ week_of = st.date_input("Week containing", value=end, key="digest_week")
 iso = (week_of or dt.date.today()).isocalendar()
 week = f"{iso.year}-W{iso.week:02d}"
 st.caption(f"ISO week {week} (Monday to Sunday, UTC)")
+requested = st.session_state.setdefault("digest_requested", set())
+if week not in requested:
+    st.write("Writing the digest reads the whole week's results; on a large fleet it takes a while.")
+    if not st.button("Prepare the preview", key="digest_build"):
+        st.stop()
+    requested.add(week)
 try:
-    files = library.digest_preview(week)
+    with st.spinner(f"Writing the digest for {week}..."):
+        files = library.digest_preview(week)
 except Exception as exc:  # noqa: BLE001 - show the reason, never a traceback
     st.warning(f"The digest could not be written for {week}: {exc}")
     st.stop()
