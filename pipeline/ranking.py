@@ -89,21 +89,29 @@ def default_as_of(con: duckdb.DuckDBPyConnection) -> datetime | None:
 
 
 def shrink(estimates: np.ndarray, se: np.ndarray) -> tuple[np.ndarray, np.ndarray, float, float]:
-    """Normal-normal empirical Bayes: posterior means and variances toward the precision-weighted mean.
+    """Normal-normal empirical Bayes: posterior means and variances toward the fleet mean.
 
     Source: Efron & Morris (1975), "Data analysis using Stein's estimator and its generalizations",
-    JASA 70:311-319; between-unit variance by method of moments, floored at a small positive value.
+    JASA 70:311-319 (shrinkage factor tau2 / (tau2 + se2)); the between-unit variance tau2 by the
+    DerSimonian & Laird (1986) moment estimator, Controlled Clinical Trials 7:177-188, which weighs
+    each unit by its precision so a few very noisy units do not wash it out.
     Returns (posterior mean, posterior variance, fleet mean, between-unit variance).
     """
-    ok = np.isfinite(estimates) & np.isfinite(se)
+    ok = np.isfinite(estimates) & np.isfinite(se) & (se > 0)
     if ok.sum() < 3:
         return estimates, se ** 2, float(np.nanmean(estimates)) if ok.any() else 0.0, float("nan")
     e, s2 = estimates[ok], se[ok] ** 2
-    mean = float(np.mean(e))
-    tau2 = max(float(np.var(e, ddof=1) - np.mean(s2)), 1e-6 * max(float(np.var(e, ddof=1)), 1e-12))
-    w = tau2 / (tau2 + se ** 2)
-    post = np.where(ok, mean + w * (estimates - mean), mean)
-    post_var = np.where(ok, w * se ** 2, tau2)
+    w = 1 / s2
+    mean_w = float((w * e).sum() / w.sum())
+    q = float((w * (e - mean_w) ** 2).sum())
+    denom = float(w.sum() - (w ** 2).sum() / w.sum())
+    tau2 = max((q - (len(e) - 1)) / denom if denom > 0 else 0.0, 1e-6)
+    wt = 1 / (s2 + tau2)
+    mean = float((wt * e).sum() / wt.sum())
+    with np.errstate(invalid="ignore"):
+        shrink_w = tau2 / (tau2 + se ** 2)
+    post = np.where(ok, mean + shrink_w * (estimates - mean), mean)
+    post_var = np.where(ok, shrink_w * se ** 2, tau2)
     return post, post_var, mean, tau2
 
 
@@ -180,9 +188,10 @@ def build_service_queue(con: duckdb.DuckDBPyConnection, settings: Settings,
         b_post, vb_post, d_post, vd_post, cov_post = b, se_b ** 2, d, se_d ** 2, cov
         b_mean = d_mean = tau2_b = tau2_d = math.nan
     comp = dict(zip(vc["component"], vc["variance"])) if not vc.empty else {}
-    rep = [v for k, v in comp.items() if str(k).startswith("repeatability") and pd.notna(v)]
+    rep = [v for k, v in comp.items() if (str(k).startswith("repeatability") or k == "residual") and pd.notna(v)]
     residual_var = float(np.median(rep)) if rep else 0.0
-    lot_var = float(comp.get("between_lots") or 0.0) if pd.notna(comp.get("between_lots", 0.0)) else 0.0
+    lot_v = comp.get("between_lots", comp.get("lot"))
+    lot_var = float(lot_v) if lot_v is not None and pd.notna(lot_v) else 0.0
     extra_var = residual_var + lot_var
     # Days from the reference time to the next visit: horizon after the data time.
     ref = pd.to_datetime(df["reference_at"]) if "reference_at" in df else pd.Series(pd.NaT, index=df.index)

@@ -39,11 +39,18 @@ def command(settings, db_path: str, region: str | None, top: int | None, as_json
         con = open_database(db_path)
         from pipeline.standards import sync_standards_settings
         sync_standards_settings(con, settings)
-        queue = build_service_queue(con, settings)
-        store_service_queue(con, queue)
-        publish_snapshot(con, db_path)
+        try:
+            queue = build_service_queue(con, settings)
+            store_service_queue(con, queue)
+            publish_snapshot(con, db_path)
+        finally:
+            con.close()
     except DatabaseLockedError:
-        queue = build_service_queue(connect_reader(db_path), settings)
+        reader = connect_reader(db_path)
+        try:
+            queue = build_service_queue(reader, settings)
+        finally:
+            reader.close()
     entries = [e for e in queue.entries if region is None or e.region == region]
     if region is not None and not entries:
         raise InputError(f"no units in region '{region}'")
