@@ -136,9 +136,9 @@ def simulate_month(sc: Scenario, month_start: date, month_index: int) -> dict[st
     reading = np.maximum(reading, 0.0)
     measured_milli = truncate3(reading)
 
-    # the instrument's own verdict against its corrected expected value
-    expected = target * np.where(kind == 0, np.exp(DUBOWSKI_COEFFICIENT * (temp - SIMULATOR_NOMINAL_C)),
-                                 p_log / REFERENCE_PRESSURE_KPA)
+    # the instrument's own verdict: wet bath against the nominal target (the instrument does not
+    # read the simulator's thermometer), dry gas against target x P / 101.325 from its own barometer
+    expected = target * np.where(kind == 0, 1.0, p_log / REFERENCE_PRESSURE_KPA)
     ok = np.abs(measured_milli / 1000.0 - expected) <= np.maximum(0.005, 0.05 * expected) + 1e-9
     outcome = np.where(ok, 0, 1)
     u01 = rng.random(rows)

@@ -220,8 +220,9 @@ def build_scenario(instruments: int, months: int, seed: int, end: date) -> Scena
 
     frac = rng.uniform(0.1, 0.8, len(drift_units))
     frac[0] = 0.15                                         # one early onset, so even short runs show a trend
-    onset = t0 + (frac * span).astype(np.int64)
     slope = -rng.uniform(0.01, 0.03, len(drift_units))
+    frac[-1], slope[-1] = 0.8, -0.012                      # one still drifting at the end (not yet replaced)
+    onset = t0 + (frac * span).astype(np.int64)
     fixed = onset + (0.06 / -slope * MONTH_S).astype(np.int64)
     fixed = (fixed // DAY) * DAY + 11 * 3600                                 # sensor replaced mid-day
     drift = pd.DataFrame({"unit": np.array(drift_units, dtype=np.int64), "onset": onset,
