@@ -270,7 +270,8 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
     params = chart_parameters(settings)
     sync_standards_settings(con, settings)
     mode = "incremental" if con.execute("SELECT count(*) FROM chart_points").fetchall()[0][0] else "full"
-    new = query_df(con, "queries/charts_input")
+    with_rb = bool(con.execute("SELECT count(*) > 0 FROM chart_rebaselines").fetchall()[0][0])
+    new = query_df(con, "queries/charts_input", with_rebaselines=with_rb)
     keys = new[KEY].drop_duplicates().reset_index(drop=True)
     state, own, tail = _load_state(con, keys)
     if len(state):
@@ -287,7 +288,7 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
                                     "AND t.level = l.level AND t.baseline_period = l.baseline_period")
             finally:
                 con.unregister("_bf_late")
-            new = query_df(con, "queries/charts_input")
+            new = query_df(con, "queries/charts_input", with_rebaselines=with_rb)
             state, own, tail = _load_state(con, keys)
     pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
     with_key = new[["technology", "standard_kind", "level"]].drop_duplicates()

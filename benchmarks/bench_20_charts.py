@@ -1,0 +1,127 @@
+"""Chart engine speed: analyse_fleet on the 10-million-check fleet against a per-unit pandas loop.
+
+Full run: every chart of every unit except the last week's checks; then an incremental run
+after that week is added back. The per-unit loop (plain Python recursions for CUSUM and EWMA,
+pandas for moving range and rolling run rules, one chart group at a time) runs on a random
+sample of chart groups in the same process and is scaled up by checks. Targets: full < 30 s,
+>= 50x the loop, incremental week < 3 s.
+Fleet: benchmarks.fleet.benchmark_database() when it exists, else a simulated fleet
+(pipeline.models.simulate.simulate_fleet, 5,000 units x 2,000 checks) cached in bench-output/.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+OUT = Path(__file__).resolve().parent.parent / "bench-output"
+
+
+def _source_db(n_units: int, per_unit: int) -> Path:
+    try:
+        from benchmarks.fleet import benchmark_database
+        return Path(benchmark_database())
+    except ImportError:
+        pass
+    import duckdb
+
+    from pipeline.db import migrate
+    from pipeline.models.simulate import simulate_fleet
+    path = OUT / f"charts-{n_units}x{per_unit}.duckdb"
+    if not path.exists():
+        OUT.mkdir(exist_ok=True)
+        tmp = path.with_suffix(".tmp")
+        tmp.unlink(missing_ok=True)
+        con = duckdb.connect(str(tmp))
+        migrate(con)
+        simulate_fleet(con, n_units=n_units, checks_per_unit=per_unit, days=720, seed=2026)
+        con.close()
+        os.replace(tmp, path)
+    return path
+
+
+def loop_charts(frame: pd.DataFrame, params: dict, pooled: float) -> int:
+    """The straightforward way: one chart group at a time, Python recursions over its checks."""
+    k, h = params["cusum"]["k"], params["cusum"]["h"]
+    lam, L = params["ewma"]["lam"], params["ewma"]["L"]
+    n_min = params["own_baseline_min_checks"]
+    signals = 0
+    for _, g in frame.groupby(["instrument_id", "level", "baseline_period"], sort=False):
+        x = g["relative_error"].to_numpy()
+        z = np.empty(len(x))
+        for i in range(len(x)):
+            if i < n_min:
+                z[i] = x[i] / pooled if i == 0 else np.sqrt(i / (i + 1)) * (x[i] - x[:i].mean()) / pooled
+            else:
+                c, s = x[:n_min].mean(), np.abs(np.diff(x[:n_min])).mean() / 1.128
+                z[i] = (x[i] - c) / s
+        zs = pd.Series(z)
+        mr = zs.diff().abs()
+        cu = cl = e = 0.0
+        for i, v in enumerate(z):
+            cu = max(0.0, cu + v - k)
+            cl = max(0.0, cl - v - k)
+            e = lam * v + (1 - lam) * e
+            half = L * np.sqrt(lam / (2 - lam) * (1 - (1 - lam) ** (2 * (i + 1))))
+            signals += (cu > h) + (cl > h) + (abs(e) > half)
+        signals += int((zs.abs() > 3).sum() + (mr > 3.686).sum())
+        signals += int(((zs > 2).rolling(3).sum() >= 2).sum() + ((zs > 1).rolling(5).sum() >= 4).sum()
+                       + ((zs > 0).rolling(8).sum() == 8).sum())
+    return signals
+
+
+def main(n_units: int = 5000, per_unit: int = 2000) -> None:
+    import duckdb
+
+    from pipeline.charts.analyse import analyse_fleet, chart_parameters
+    from pipeline.db import migrate, query_df
+    from pipeline.settings import Settings
+
+    src = _source_db(n_units, per_unit)
+    work = OUT / "charts-work.duckdb"
+    shutil.copyfile(src, work)
+    con = duckdb.connect(str(work))
+    migrate(con)
+    for t in ("chart_points", "chart_signals", "chart_baselines", "chart_state", "chart_runs", "chart_pooled_sigma",
+              "chart_groups", "chart_linearity"):
+        con.execute(f"DELETE FROM {t}")  # noqa: S608
+    end = con.execute("SELECT max(measured_at) FROM checks").fetchall()[0][0]
+    con.execute("CREATE OR REPLACE TABLE _bench_week AS SELECT * FROM checks WHERE measured_at > $e - INTERVAL 7 DAY",
+                {"e": end})
+    con.execute("DELETE FROM checks WHERE measured_at > $e - INTERVAL 7 DAY", {"e": end})
+    settings = Settings()
+    t0 = time.perf_counter()
+    full = analyse_fleet(con, settings)
+    t_full = time.perf_counter() - t0
+    con.execute("INSERT INTO checks SELECT * FROM _bench_week")
+    t0 = time.perf_counter()
+    inc = analyse_fleet(con, settings)
+    t_inc = time.perf_counter() - t0
+    # The loop baseline on a sample of chart groups, scaled up by checks.
+    pts = con.execute("SELECT instrument_id, level, baseline_period, relative_error FROM chart_points "
+                      "WHERE instrument_id IN (SELECT DISTINCT instrument_id FROM chart_points USING SAMPLE 40 ROWS "
+                      "(reservoir, 7)) ORDER BY instrument_id, level, baseline_period, position").df()
+    sigma = float(con.execute("SELECT median(sigma) FROM chart_pooled_sigma").fetchall()[0][0])
+    params = chart_parameters(settings)
+    t0 = time.perf_counter()
+    loop_charts(pts, params, sigma)
+    t_loop_sample = time.perf_counter() - t0
+    total = full.n_new_checks + inc.n_new_checks
+    t_loop = t_loop_sample * total / max(len(pts), 1)
+    con.close()
+    print(f"fleet: {total:,} charted checks, {full.n_groups:,} chart groups ({src.name})")
+    print(f"full run:        {t_full:8.2f} s  ({full.n_new_checks:,} checks, {full.n_signals:,} signals)   target < 30 s")
+    print(f"per-unit loop:   {t_loop:8.1f} s  (sample {len(pts):,} checks in {t_loop_sample:.2f} s, scaled)")
+    print(f"speed-up:        {t_loop / t_full:8.1f} x   target >= 50 x")
+    print(f"incremental week:{t_inc:8.2f} s  ({inc.n_new_checks:,} checks)   target < 3 s")
+
+
+if __name__ == "__main__":
+    args = [int(a) for a in sys.argv[1:3]]
+    main(*args)
