@@ -97,8 +97,11 @@ def fit_fleet_model(con: duckdb.DuckDBPyConnection, settings: Settings) -> Fleet
     window_end = pd.Timestamp(end).to_pydatetime()
     window_start = window_end - dt.timedelta(days=ms.window_days)
     con.execute(sql_text("queries/model_base"), {"window_start": window_start, "window_end": window_end})
+    sql_s = time.perf_counter() - started
     try:
-        return _fit_window(con, settings, fitted_at, started, window_start, window_end)
+        result = _fit_window(con, settings, fitted_at, started, window_start, window_end)
+        result.parameters.setdefault("timings_s", {})["check_results_to_model_base"] = sql_s
+        return result
     finally:
         con.execute("DROP TABLE IF EXISTS model_base")
 
@@ -115,8 +118,10 @@ def _fit_window(con, settings: Settings, fitted_at, started, window_start, windo
     for col in STAT_COLUMNS:
         cells[col] = cells[col].astype(float)
     has_d = bool((cells["sdd"] > 0).any())
+    reml_started = time.perf_counter()
     fit = fit_reml(cells, n_lots=len(lot_ids), n_subjects=len(subjects), n_groups=len(groups),
                    fixed_t=True, fixed_d=has_d, random_slope=True, lot_names=tuple(lot_ids))
+    reml_s = time.perf_counter() - reml_started
     n_checks = int(cells["n"].sum())
     fixed = {name: float(v) for name, v in zip(fit.fixed_names, fit.fixed)}
     params = {
@@ -128,6 +133,7 @@ def _fit_window(con, settings: Settings, fitted_at, started, window_start, windo
                                                                 np.diag(fit.fixed_cov)[len(lot_ids):])},
         "theta": [float(x) for x in fit.theta], "neg2_reml": fit.neg2_reml, "iterations": fit.iterations,
         "residual_groups": list(map(str, groups)), "n_cells": int(len(cells)),
+        "timings_s": {"reml": reml_s},
     }
     variance = _variance_components(fit, groups, cells, lot_ids)
     diags = [Diagnostic("converged", float(fit.converged), fit.converged,
