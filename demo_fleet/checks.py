@@ -90,6 +90,14 @@ def simulate_month(sc: Scenario, month_start: date, month_index: int) -> dict[st
     order = np.lexsort((level, ctype, unit, t))
     order = order[keep[order]]
     unit, t, day, ctype, level = unit[order], t[order], day[order], ctype[order], level[order]
+    # one unit never logs two checks in the same second: move a clash on by a second
+    while True:
+        clash = np.flatnonzero((t[1:] == t[:-1]) & (unit[1:] == unit[:-1])) + 1
+        if len(clash) == 0:
+            break
+        t[clash] += 1
+        order = np.lexsort((level, ctype, unit, t))
+        unit, t, day, ctype, level = unit[order], t[order], day[order], ctype[order], level[order]
     rows = len(unit)
     site = sc.unit_site[unit]
     kind = sc.unit_kind[unit]

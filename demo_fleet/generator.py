@@ -216,6 +216,7 @@ def generate_demo_fleet(out_dir: str | Path, instruments: int = 300, months: int
     reexport = {"month": None, "duplicates": 0, "new": 0}
     planted: list[dict] = []
     per_unit_month = []
+    file_rows: dict[str, int] = {}
     for i, ms in enumerate(starts):
         m = simulate_month(sc, ms, i)
         if i == re_month:
@@ -229,7 +230,9 @@ def generate_demo_fleet(out_dir: str | Path, instruments: int = 300, months: int
             code = {"canonical": 0, "mgl": 1, "ugdl": 2, "local": 3}[lay]
             name = f"checks-{tag}.csv" if lay == "canonical" else f"{lay}-{tag}.csv"
             path = Path(LAYOUT_DIRS[lay]) / name
-            n_checks += copy_rows(con, lay, f"m.layout = {code} AND NOT m.held_back", out / path)
+            rows = copy_rows(con, lay, f"m.layout = {code} AND NOT m.held_back", out / path)
+            n_checks += rows
+            file_rows[path.as_posix()] = rows
             files.append(path)
             if lay == "local":
                 extra = _planted_local_rows(sc, ms)
@@ -243,7 +246,7 @@ def generate_demo_fleet(out_dir: str | Path, instruments: int = 300, months: int
             mid = int(np.median(m["t"]))
             path = Path("reexport") / f"checks-{tag}-reexport.csv"
             where = f"m.layout = 0 AND (m.held_back OR epoch(m.local_ts) - m.offset_min * 60 >= {mid})"
-            copy_rows(con, "canonical", where, out / path)
+            file_rows[path.as_posix()] = copy_rows(con, "canonical", where, out / path)
             canon = sc.site_layout[m["site"]] == "canonical"
             reexport = {"month": tag, "path": path.as_posix(),
                         "duplicates": int((canon & ~m["held_back"] & (m["t"] >= mid)).sum()),
@@ -280,7 +283,11 @@ def generate_demo_fleet(out_dir: str | Path, instruments: int = 300, months: int
     manifest.append({"path": "broken/broken-rows.csv", "profile": "demo_fleet/profiles/broken.toml", "table": "checks"})
     (out / "manifest.json").write_text(json.dumps(manifest, indent=2) + "\n", encoding="utf-8")
 
+    for p in planted:
+        file_rows[p["path"]] += 1
+    file_rows["broken/broken-rows.csv"] = len(broken_lines)
     truth = _truth(sc, events, planted, reexport, expected, n_checks, np.vstack(per_unit_month))
+    truth["data_rows_per_file"] = file_rows
     (out / "truth.json").write_text(json.dumps(truth, indent=2) + "\n", encoding="utf-8")
 
     return DemoFleet(out_dir=out, manifest=out / "manifest.json", truth=out / "truth.json",

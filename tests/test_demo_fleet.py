@@ -143,6 +143,14 @@ def test_layout_matches_manifest(fleet):
     assert {fleet.out_dir / f for f in fleet.files} == data_files
 
 
+def test_truth_counts_every_data_row(fleet, truth):
+    for path, rows in truth["data_rows_per_file"].items():
+        with open(fleet.out_dir / path, encoding="utf-8") as fh:
+            assert sum(1 for _ in fh) - 1 == rows, path
+    regular = sum(r for p, r in truth["data_rows_per_file"].items() if not p.startswith(("reexport", "broken")))
+    assert regular - len(truth["planted_local_time_rows"]) + truth["reexport"]["new"] == fleet.checks
+
+
 def test_profiles_use_only_documented_keys():
     # The profile format of DEVELOPERS.md ("How to add a source profile")
     allowed = {"profile": {"name", "table", "delimiter", "decimal", "encoding", "header"},
@@ -284,6 +292,8 @@ def test_control_daily_verification_mix(checks):
     per_unit_month = checks.groupby([checks["instrument_id"], checks["measured_at"].dt.to_period("M")]).size()
     assert 50 < per_unit_month.median() < 120
     assert set(checks["operator_id"].str.fullmatch(r"OP-\d{4}")) == {True}
+    # no accidental exact duplicates: a unit never logs two checks in the same second
+    assert not checks.duplicated(["instrument_id", "measured_at"]).any()
 
 
 def test_demo_data_command(tmp_path):
