@@ -119,6 +119,11 @@ def main(n_units: int = 5000, per_unit: int = 2000) -> None:
     print(f"full run:        {t_full:8.2f} s  ({full.n_new_checks:,} checks, {full.n_signals:,} signals)   target < 30 s")
     print(f"per-unit loop:   {t_loop:8.1f} s  (sample {len(pts):,} checks in {t_loop_sample:.2f} s, scaled)")
     print(f"speed-up:        {t_loop / t_full:8.1f} x   target >= 50 x")
+    tm = full.timings
+    print(f"full run parts:  read check_results {tm['read']:.2f} s, compute {tm['compute']:.2f} s, store {tm['store']:.2f} s;"
+          f" compute-only speed-up {t_loop / tm['compute']:.1f} x")
+    ti = inc.timings
+    print(f"incremental parts: read {ti['read']:.2f} s, compute {ti['compute']:.2f} s, store {ti['store']:.2f} s")
     print(f"incremental week:{t_inc:8.2f} s  ({inc.n_new_checks:,} checks)   target < 3 s")
 
 

@@ -119,3 +119,22 @@ def test_nothing_new_is_a_noop():
     analyse_fleet(con, Settings())
     run = analyse_fleet(con, Settings())
     assert run.n_new_checks == 0 and run.n_signals == 0
+
+
+def test_analyse_command_stores_and_publishes(tmp_path):
+    from click.testing import CliRunner
+
+    from pipeline.cli import main
+    from pipeline.db import snapshot_path
+
+    db = tmp_path / "fleet.duckdb"
+    con = make_db(fleet_checks(n_units=4, n=30))
+    con.execute(f"ATTACH '{db}' AS f")
+    con.execute("COPY FROM DATABASE memory TO f")
+    con.close()
+    result = CliRunner().invoke(main, ["analyse", "--db", str(db)])
+    assert result.exit_code == 0, result.output
+    assert "full run 1: 120 new checks" in result.output
+    assert snapshot_path(db).exists()
+    missing = CliRunner().invoke(main, ["analyse", "--db", str(tmp_path / "none.duckdb")])
+    assert missing.exit_code != 0 and "database file does not exist; ingest data first" in missing.output

@@ -50,6 +50,7 @@ class AnalysisRun:
     duration_s: float
     parameters: dict
     data_end: datetime | None
+    timings: dict  # seconds: read (check_results + state), compute (all charts), store
 
 
 def chart_parameters(settings: Settings) -> dict:
@@ -301,6 +302,7 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
         con.execute("INSERT INTO chart_pooled_sigma SELECT technology, standard_kind, level, sigma, n_pairs, "
                     "frozen_at, method FROM fresh")
         pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
+    t_read = time.perf_counter() - t0
     out = compute_charts(new, tail, state, own, pooled, params)
     window = settings.charts.replicate_window_minutes
     typed = out["points"][["check_id", "instrument_id", "level", "measured_at", "z", "position"]].merge(
@@ -317,6 +319,7 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
                     direction=np.where(hit[stat] > hit[hi], "up", "down"), size=hit[stat].to_numpy(),
                     onset_at=pd.NaT, onset_back=0))
     sig = pd.concat([out["signals"], *extra], ignore_index=True) if extra else out["signals"]
+    t_compute = time.perf_counter() - t0 - t_read
     ver = new[new["check_type"] == "verification"]
     lin = fit_linearity(ver[["instrument_id", "measured_at", "expected", "measured", "level"]],
                         settings.charts.verification_window_minutes)
@@ -377,4 +380,5 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
                      "s": len(sig), "b": len(bl), "end": data_end, "p": json.dumps(params, default=str),
                      "v": SOFTWARE_VERSION})
     return AnalysisRun(run_id=run_id, mode=mode, n_new_checks=len(pts), n_groups=len(st), n_signals=len(sig),
-                       n_baselines=len(bl), duration_s=duration, parameters=params, data_end=data_end)
+                       n_baselines=len(bl), duration_s=duration, parameters=params, data_end=data_end,
+                       timings={"read": t_read, "compute": t_compute, "store": duration - t_read - t_compute})
