@@ -32,6 +32,7 @@ CAUTIONS = ("This report informs maintenance and oversight of the instrument pro
             "local regulations, or the judgement of licensed and trained practitioners; defer to those.")
 _WEEK = re.compile(r"^(\d{4})-W(\d{2})$")
 TOP_PER_REGION = 5
+MIN_P_SHOWN = 0.01   # units below 1 % chance of breach are not listed as the top of the queue
 
 
 @dataclass(frozen=True)
@@ -120,7 +121,7 @@ def digest_context(con: duckdb.DuckDBPyConnection, settings: Settings, week: str
     regions: dict[str, list] = {}
     for e in queue.entries:
         lst = regions.setdefault(e.region or "(no region)", [])
-        if len(lst) < TOP_PER_REGION and e.p_breach > 0:
+        if len(lst) < TOP_PER_REGION and e.p_breach >= MIN_P_SHOWN:
             lst.append({"rank": e.rank, "unit": e.instrument_id, "site": e.site_id or "-",
                         "p": f"{100 * e.p_breach:.1f} %", "ranks": f"{e.rank_low}-{e.rank_high}",
                         "reason": " ".join(e.reasons)})
@@ -177,7 +178,7 @@ def digest_context(con: duckdb.DuckDBPyConnection, settings: Settings, week: str
                               for r in quar.itertuples()]
 
     daily = query_df(con, "queries/digest_daily_fails", **p)
-    charts = {}
+    charts: dict = {"daily": None, "queue": None}
     if not daily.empty:
         d = daily.assign(day=daily["day"].astype(str), within=daily["n_checks"] - daily["n_fail"])
         long = pd.concat([d[["day"]].assign(verdict="within tolerance", checks=d["within"]),
@@ -188,7 +189,7 @@ def digest_context(con: duckdb.DuckDBPyConnection, settings: Settings, week: str
                                                           range=["#0072B2", "#D55E00"]))
         ).properties(width=360, height=140).to_dict()
         charts["daily"] = png_data_uri(spec)
-    top = [e for e in queue.entries if e.p_breach > 0][:10]
+    top = [e for e in queue.entries if e.p_breach >= MIN_P_SHOWN][:10]
     if top:
         tdf = pd.DataFrame({"unit": [e.instrument_id for e in top], "p": [100 * e.p_breach for e in top]})
         spec = alt.Chart(tdf, title="Top of the queue: chance of breach before the next visit (%)").mark_bar(
