@@ -66,7 +66,8 @@ def chart_parameters(settings: Settings) -> dict:
 
 
 def _starts(frame: pd.DataFrame) -> np.ndarray:
-    s = group_starts(frame["instrument_id"].to_numpy())
+    inst = frame["instrument_id"]
+    s = group_starts(inst.cat.codes.to_numpy() if isinstance(inst.dtype, pd.CategoricalDtype) else inst.to_numpy())
     s |= group_starts(frame["level"].to_numpy()) | group_starts(frame["baseline_period"].to_numpy())
     return s
 
@@ -91,8 +92,14 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     if len(tail):
         frame = frame.sort_values(KEY + ["old", "measured_at", "check_id"], ascending=[True, True, True, False, True, True],
                                   kind="stable").reset_index(drop=True)
+    # Unit names as categorical codes: string arrays are the slow part at fleet scale.
+    inst_codes, inst_names = pd.factorize(frame["instrument_id"])
+    frame["instrument_id"] = pd.Categorical.from_codes(inst_codes, categories=inst_names)
+
+    def unit_of(idx):
+        return pd.Categorical.from_codes(inst_codes[idx], categories=inst_names)
     st = state.set_index(KEY) if len(state) else None
-    keyidx = pd.MultiIndex.from_frame(frame[KEY])
+    keyidx = pd.MultiIndex.from_frame(frame[KEY]) if (st is not None or len(own)) else None
     def carried(col, default):
         if st is None:
             return np.full(len(frame), default, dtype=float)
@@ -141,7 +148,7 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     zn = z[nm]
     sn = _starts(frame.loc[nm])
     first_new = np.flatnonzero(sn)
-    fk = pd.MultiIndex.from_frame(frame.loc[nm, KEY].iloc[first_new])
+    fk = pd.MultiIndex.from_frame(frame[KEY].iloc[np.flatnonzero(nm)[first_new]])
     def init(col, default):
         if st is None:
             return np.full(len(first_new), default, dtype=float)
@@ -157,7 +164,7 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     mr_limit = mr_ucl_standardised()
     nf = frame.loc[nm].reset_index(drop=True)
     points = pd.DataFrame({
-        "check_id": nf["check_id"].to_numpy(), "instrument_id": nf["instrument_id"].to_numpy(),
+        "check_id": nf["check_id"].to_numpy(), "instrument_id": unit_of(np.flatnonzero(nm)),
         "level": nf["level"].to_numpy(), "baseline_period": nf["baseline_period"].to_numpy(),
         "measured_at": nf["measured_at"].to_numpy(), "position": position[nm].astype(np.int64),
         "relative_error": x[nm], "z": zn, "moving_range": mr[nm],
@@ -205,7 +212,7 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     signals = pd.concat(sig_frames, ignore_index=True)
     # Baselines frozen in this run: version 1 at each new segment's first check, version 2 own estimate.
     first_rows = np.flatnonzero(starts & (position == 1) & ~old)
-    b1 = pd.DataFrame({"instrument_id": frame["instrument_id"].to_numpy()[first_rows],
+    b1 = pd.DataFrame({"instrument_id": unit_of(first_rows),
                        "level": frame["level"].to_numpy()[first_rows],
                        "baseline_period": frame["baseline_period"].to_numpy()[first_rows], "version": 1,
                        "frozen_at": frame["measured_at"].to_numpy()[first_rows], "reason": "period_start",
@@ -215,7 +222,7 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     if len(new_own):
         r = new_own["row"].to_numpy(dtype=int)
         g_first = np.flatnonzero(starts)[new_own["group"].to_numpy()]
-        b2 = pd.DataFrame({"instrument_id": frame["instrument_id"].to_numpy()[r], "level": frame["level"].to_numpy()[r],
+        b2 = pd.DataFrame({"instrument_id": unit_of(r), "level": frame["level"].to_numpy()[r],
                            "baseline_period": frame["baseline_period"].to_numpy()[r], "version": 2,
                            "frozen_at": frame["measured_at"].to_numpy()[r], "reason": "own_estimate",
                            "sigma_source": "unit", "center": new_own["center"].to_numpy(),
@@ -229,7 +236,7 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     last = np.flatnonzero(np.r_[sn[1:], True]) if len(zn) else np.empty(0, int)
     add_sum = pd.Series(x[nm]).groupby(gn).sum().to_numpy() if len(zn) else np.empty(0)
     new_state = pd.DataFrame({
-        "instrument_id": points["instrument_id"].to_numpy()[last], "level": points["level"].to_numpy()[last],
+        "instrument_id": points["instrument_id"].array[last], "level": points["level"].to_numpy()[last],
         "baseline_period": points["baseline_period"].to_numpy()[last],
         "n": points["position"].to_numpy()[last], "sum_x": init("sum_x", 0.0) + add_sum,
         "cusum_upper": cus.upper[last], "cusum_lower": cus.lower[last],
