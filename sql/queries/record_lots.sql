@@ -1,8 +1,8 @@
 -- name: record_lots
 -- One row: a lot $instrument_id checked on in [$start, $end), with its certificate and its verdict in the
--- latest converged fleet model fit before $end.
+-- latest converged fleet model fit (the best current knowledge of the lot, also for past periods).
 WITH fit AS (
-    SELECT fit_id FROM model_fits WHERE converged AND window_end < $end
+    SELECT fit_id FROM model_fits WHERE converged
     ORDER BY window_end DESC, fit_id DESC LIMIT 1
 ),
 used AS (
