@@ -147,13 +147,21 @@ def _demo_db(request):
 
 def test_demo_fleet_faulty_units_rank_above_healthy_and_bad_lot_is_explained(request):
     demo = _demo_db(request)
-    con, truth = (demo.con, demo.truth) if hasattr(demo, "con") else demo
+    db_path = getattr(demo, "db", None) or getattr(demo, "path", None) or demo
+    truth_path = getattr(demo, "truth", None) or Path(db_path).parent / "truth.json"
+    truth = json.loads(Path(truth_path).read_text())
+    con = duckdb.connect(str(db_path), read_only=True)
     q = build_service_queue(con, Settings())
+    bad_lots = [b["lot_id"] for b in truth["bad_lots"]]
+    lot_users = {r[0] for r in con.execute("SELECT DISTINCT instrument_id FROM checks WHERE list_contains($l, lot_id)",
+                                           {"l": bad_lots}).fetchall()}
+    con.close()
     rank = {e.instrument_id: e.rank for e in q.entries}
-    faulty = set(truth.get("faulty_units", []))
-    healthy = set(rank) - faulty - set(truth.get("bad_lot_units", []))
-    # the demo scenario's truth.json (demo helper): planted faults must outrank every healthy unit
+    faulty = {f["instrument_id"] for f in truth["faults"]}
+    healthy = set(rank) - faulty - lot_users - {truth["legitimate_gap"]["instrument_id"]}
+    # demo_fleet truth.json (the planted faults of the invented scenario): every one outranks every healthy unit
     assert max(rank[u] for u in faulty) < min(rank[u] for u in healthy)
-    for unit in truth.get("bad_lot_units", []):
-        entry = next(e for e in q.entries if e.instrument_id == unit)
-        assert entry.evidence["lot_explained"] is True
+    flagged = [e for e in q.entries if e.instrument_id in lot_users - faulty and e.reasons != ("No evidence of a problem.",)
+               and e.evidence.get("off_lots")]
+    assert flagged and all(e.evidence["lot_explained"] for e in flagged if e.evidence.get("signals")
+                           or e.evidence.get("out_of_tolerance"))
