@@ -95,8 +95,9 @@ class SnapshotReader:
             return
         with self._cond:
             newer = self._token is None or self._token.path != token.path or token.mtime_ns > self._token.mtime_ns
+            if newer and self._con is not None and not self._cond.wait_for(lambda: self._active == 0, timeout=30):
+                newer = False  # a long query (e.g. a digest) still reads the old file: switch next time
             if newer:
-                self._cond.wait_for(lambda: self._active == 0, timeout=120)
                 if self._con is not None:
                     self._con.close()
                     self._con = None
@@ -219,3 +220,52 @@ def state_counts(states: pd.DataFrame, by: list[str]) -> pd.DataFrame:
     """Counts of units per state, grouped by `by` (e.g. region, or region and site)."""
     counts = states.groupby(by + ["state"], dropna=False).size().rename("units").reset_index()
     return counts
+
+
+def _default_queries(token: DataToken) -> list[tuple[str, dict[str, Any]]]:
+    """The fleet-wide queries each page runs on its first render, with the pages' default parameters."""
+    queries: list[tuple[str, dict[str, Any]]] = [
+        ("dashboard_data_range", {}), ("dashboard_unit_tolerance", {}),
+        ("dashboard_unit_signal_counts", {"days": 7}), ("dashboard_signals_recent", {"days": 7}),
+        ("dashboard_queue", {}), ("dashboard_unit_list", {}), ("dashboard_levels", {}),
+        ("dashboard_lot_usage", {}), ("dashboard_lot_effects", {}), ("dashboard_lot_acceptance", {}),
+        ("dashboard_ingest_ledger", {}), ("dashboard_quarantine_reasons", {}),
+        ("dashboard_silent_units", {"days": settings().queue.silence_days}),
+        ("dashboard_verdict_disagreements", {}), ("dashboard_fleet_trend", {}),
+    ]
+    levels = _query(token, "dashboard_levels", ())
+    if levels is not None and not levels.empty:
+        level = levels["level"].tolist()[0]
+        queries += [("dashboard_funnel_units", {"level": level, "days": 90, "max_points": MAX_POINTS,
+                                                "overdispersed": True}),
+                    ("dashboard_funnel_limits", {"level": level, "days": 90, "overdispersed": True})]
+    return queries
+
+
+def _prewarm(token: DataToken) -> None:
+    for name, params in _default_queries(token):
+        if data_token() != token:  # a newer snapshot arrived: its own prewarm takes over
+            return
+        try:
+            _query(token, name, tuple(sorted(params.items())))
+        except Exception:  # noqa: BLE001 - a page shows the error when it runs the query itself
+            continue
+
+
+@st.cache_resource(show_spinner=False)
+def _prewarmed() -> dict[str, Any]:
+    return {"lock": threading.Lock(), "tokens": set()}
+
+
+def prewarm() -> None:
+    """Run the fleet-wide queries in a background thread once per snapshot, so the first visitor
+    after a publish finds them cached. Called by the frame on every rerun; cheap when done."""
+    token = data_token()
+    if token is None or not snapshot_path(token.path).exists():
+        return
+    state = _prewarmed()
+    with state["lock"]:
+        if token in state["tokens"]:
+            return
+        state["tokens"].add(token)
+    threading.Thread(target=_prewarm, args=(token,), name="breathfleet-prewarm", daemon=True).start()
