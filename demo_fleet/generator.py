@@ -16,11 +16,11 @@ import duckdb
 import numpy as np
 import pandas as pd
 
-from demo_fleet.checks import CALIBRATION, simulate_month
+from demo_fleet.checks import simulate_month
 from demo_fleet.scenario import (
-    AGENCY, DAY, KINDS, LEVELS, REGIONS, ZONES, Scenario, build_scenario, epoch_s, month_starts,
+    AGENCY, DAY, KINDS, LEVELS, REGIONS, ZONES, Scenario, build_scenario, month_starts,
 )
-from demo_fleet.writers import CANONICAL_COLUMNS, copy_rows, month_table, register_dimensions
+from demo_fleet.writers import CANONICAL_COLUMNS, LAYOUT_CODES, copy_rows, month_table, register_dimensions
 
 PROFILES_DIR = Path(__file__).resolve().parent / "profiles"
 DEFAULT_END = date(2026, 11, 29)
@@ -124,14 +124,11 @@ def _broken_rows(sc: Scenario) -> tuple[list[str], list[tuple[int, str]]]:
     zones_dst = [ZONES.index(z) for z in ZONES if z != "America/Phoenix"]
     u = int(np.flatnonzero(np.isin(sc.site_zone[sc.unit_site], zones_dst) & (sc.unit_in_service < sc.t0))[0])
     s = int(sc.unit_site[u])
-    zone = ZONES[sc.site_zone[s]]
     kind = int(sc.unit_kind[u])
     iid = sc.instruments["instrument_id"].iloc[u]
     site = sc.sites["site_id"].iloc[s]
     op = sc.operator_codes[sc.site_op_start[s]]
-    last_q = (sc.lot_table.shape[2] - 1) - 1
-    lot = sc.lots["lot_id"].iloc[sc.lot_table[kind, 1, max(0, min(last_q, ((sc.end.year - sc.start.year) * 12
-                                                                         + sc.end.month - sc.start.month) // 3)), 0]]
+    lot = sc.lots["lot_id"].iloc[sc.lot_table[kind, 1, sc.lot_table.shape[2] - 1, 0]]    # the last quarter's
     temp, press = ("34.02", "") if kind == 0 else ("", "84.3")
     day = (sc.end - timedelta(days=5)).isoformat()
     in_service = date.fromisoformat(sc.instruments["in_service_on"].iloc[u])
@@ -169,7 +166,6 @@ def _broken_rows(sc: Scenario) -> tuple[list[str], list[tuple[int, str]]]:
     for reason, make in cases:
         rows.append(make())
         expected.append((len(rows) + 1, reason))
-    del zone
     return rows, expected
 
 
@@ -227,7 +223,7 @@ def generate_demo_fleet(out_dir: str | Path, instruments: int = 300, months: int
         con.register("month", table)
         tag = f"{ms:%Y-%m}"
         for lay in layouts_present:
-            code = {"canonical": 0, "mgl": 1, "ugdl": 2, "local": 3}[lay]
+            code = LAYOUT_CODES[lay]
             name = f"checks-{tag}.csv" if lay == "canonical" else f"{lay}-{tag}.csv"
             path = Path(LAYOUT_DIRS[lay]) / name
             rows = copy_rows(con, lay, f"m.layout = {code} AND NOT m.held_back", out / path)
@@ -311,22 +307,27 @@ def _truth(sc: Scenario, events: pd.DataFrame, planted: list[dict], reexport: di
     faults = []
     for u, onset, fixed, slope in sc.drift.itertuples(index=False):
         faults.append({"instrument_id": ids[u], "kind": "drift", "start": _ts(onset),
-                       "end": _ts(fixed) if fixed > 0 else None, "slope_pct_per_30d": round(slope * 100, 3),
+                       "end": _ts(fixed) if fixed > 0 else None, "active_at_end": bool(fixed < 0),
+                       "slope_pct_per_30d": round(slope * 100, 3),
                        "note": "relative bias falls linearly from onset (or the last calibration) "
                                "until a sensor replacement at end"})
     su, s_at, s_size = sc.step
-    faults.append({"instrument_id": ids[su], "kind": "step", "start": _ts(s_at), "end": None,
+    faults.append({"instrument_id": ids[su], "kind": "step", "start": _ts(s_at), "end": None, "active_at_end": True,
                    "size_pct": round(s_size * 100, 3)})
     faults.append({"instrument_id": ids[sc.noisy], "kind": "noisy", "start": _ts(sc.t0), "end": None,
+                   "active_at_end": True,
                    "sd_pct": round(float(sc.unit_sd[sc.noisy]) * 100, 3)})
     hu, h0, h1 = sc.heater
     faults.append({"instrument_id": ids[hu], "kind": "heater_fault", "start": _ts(h0),
-                   "end": _ts(h1) if h1 < sc.t_end else None, "temperature_c": [34.6, 35.0],
+                   "end": _ts(h1) if h1 < sc.t_end else None, "active_at_end": bool(h1 >= sc.t_end),
+                   "temperature_c": [34.6, 35.0],
                    "note": "simulator runs hot; readings high by exp(0.06583 (T - 34)); logged temperature is true"})
     silent = int(np.flatnonzero(sc.unit_stop < sc.t_end)[0])
     faults.append({"instrument_id": ids[silent], "kind": "silent", "start": _ts(sc.unit_stop[silent]), "end": None,
+                   "active_at_end": True,
                    "site_id": sc.sites["site_id"].iloc[sc.unit_site[silent]]})
     faults.append({"instrument_id": ids[sc.abort_unit], "kind": "elevated_aborts", "start": _ts(sc.t0), "end": None,
+                   "active_at_end": True,
                    "abort_rate": float(sc.unit_abort_rate[sc.abort_unit])})
     gu, g0, g1 = sc.unit_gap
     return {

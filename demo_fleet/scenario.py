@@ -208,8 +208,6 @@ def build_scenario(instruments: int, months: int, seed: int, end: date) -> Scena
     silent_unit = take(lambda u: site_count[unit_site[u]] >= 2)
     abort_unit = take(lambda u: True)
     gap_unit = take(lambda u: True)
-    bad_wet_user = take(lambda u: unit_kind[u] == 0)    # reserved so the bad lots have healthy users too
-    del bad_wet_user
 
     unit_sd[noisy_unit] = 0.045
     unit_abort[abort_unit] = 0.07

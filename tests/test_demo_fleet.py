@@ -115,8 +115,9 @@ def test_files_hold_three_decimal_results(fleet, checks):
 
 
 def test_canonical_timestamps_carry_an_offset(fleet):
-    text = (fleet.out_dir / "checks").glob("checks-*.csv")
-    for f in text:
+    files = sorted((fleet.out_dir / "checks").glob("checks-*.csv"))
+    assert files
+    for f in files:
         stamps = pd.read_csv(f, dtype=str)["measured_at"]
         assert stamps.str.fullmatch(r"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d[+-]\d\d:\d\d").all()
 
@@ -211,6 +212,8 @@ def test_reexport_overlaps_its_canonical_month(fleet, truth):
 def test_drifting_unit_loses_sensitivity(checks, truth):
     drift = [f for f in truth["faults"] if f["kind"] == "drift"]
     assert len(drift) >= 2
+    assert all(isinstance(f["active_at_end"], bool) for f in truth["faults"])
+    assert drift[-1]["end"] is None and drift[-1]["active_at_end"]
     f = drift[0]
     start = pd.Timestamp(f["start"]).tz_localize(None)
     end = pd.Timestamp(f["end"]).tz_localize(None) if f["end"] else checks["measured_at"].max()
