@@ -120,7 +120,8 @@ def _fit_window(con, settings: Settings, fitted_at, started, window_start, windo
     has_d = bool((cells["sdd"] > 0).any())
     reml_started = time.perf_counter()
     fit = fit_reml(cells, n_lots=len(lot_ids), n_subjects=len(subjects), n_groups=len(groups),
-                   fixed_t=True, fixed_d=has_d, random_slope=True, lot_names=tuple(lot_ids))
+                   fixed_t=True, fixed_d=has_d, random_slope=True, lot_names=tuple(lot_ids),
+                   theta0=_previous_theta(con, list(map(str, groups))))
     reml_s = time.perf_counter() - reml_started
     n_checks = int(cells["n"].sum())
     fixed = {name: float(v) for name, v in zip(fit.fixed_names, fit.fixed)}
@@ -166,6 +167,20 @@ def _fit_window(con, settings: Settings, fitted_at, started, window_start, windo
         warnings=fit.warnings, parameters=params, duration_s=time.perf_counter() - started,
         lot_effects=lots, unit_estimates=units, variance_components=variance, diagnostics=tuple(diags),
         acceptance=acceptance, fixed_effects=fixed)
+
+
+def _previous_theta(con, groups: list[str]) -> np.ndarray | None:
+    """Theta of the latest converged fit with the same residual groups: a warm start for the optimiser."""
+    row = con.execute("SELECT parameters FROM model_fits WHERE converged ORDER BY fit_id DESC LIMIT 1").fetchone()
+    if row is None:
+        return None
+    try:
+        params = json.loads(row[0])
+    except (TypeError, ValueError):
+        return None
+    if params.get("residual_groups") != groups or "theta" not in params:
+        return None
+    return np.asarray(params["theta"], float)
 
 
 def _z(ms) -> float:

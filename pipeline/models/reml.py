@@ -227,7 +227,8 @@ def start_values(cells: pd.DataFrame, n_groups: int, random_slope: bool) -> np.n
 
 def fit_reml(cells: pd.DataFrame, *, n_lots: int, n_subjects: int, n_groups: int = 1,
              fixed_t: bool = True, fixed_d: bool = True, random_slope: bool = True,
-             lot_names: tuple[str, ...] | None = None, maxiter: int = 500) -> RemlFit:
+             lot_names: tuple[str, ...] | None = None, maxiter: int = 500,
+             theta0: np.ndarray | None = None) -> RemlFit:
     """Fit the model by profiled REML from cell statistics.
 
     Parameters:
@@ -236,12 +237,17 @@ def fit_reml(cells: pd.DataFrame, *, n_lots: int, n_subjects: int, n_groups: int
         n_lots, n_subjects, n_groups: sizes of the index ranges.
         fixed_t, fixed_d: include the fixed mean slope in t and the depletion slope in d.
         random_slope: a random slope in t per subject (else a random intercept only).
+        theta0: a start (e.g. the previous fit's theta); moment estimates when None or the wrong length.
     Returns:
         RemlFit with beta, its covariance, variance components, BLUPs and convergence flags.
     Source: see the module docstring.
     """
     prob = _Problem(cells, n_lots, n_subjects, n_groups, fixed_t, fixed_d, random_slope)
-    theta0 = start_values(cells, n_groups, random_slope)
+    start = start_values(cells, n_groups, random_slope)
+    if theta0 is None or len(theta0) != len(start) or not np.all(np.isfinite(theta0)) \
+            or not np.isfinite(prob.objective(np.asarray(theta0, float))):
+        theta0 = start
+    theta0 = np.asarray(theta0, float)
     caught: list[str] = []
     with warnings.catch_warnings(record=True) as wlist, np.errstate(all="ignore"):
         warnings.simplefilter("always")
