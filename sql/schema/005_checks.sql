@@ -16,6 +16,7 @@ CREATE TABLE IF NOT EXISTS checks (
     operator_id       TEXT,                   -- keyed hash of the source operator code
     outcome           TEXT,                   -- pass, fail, aborted, invalid (the instrument's own verdict)
     file_id           INTEGER NOT NULL,       -- ingest_ledger.file_id
-    line              BIGINT NOT NULL,        -- line in the source file (1 = first data line after the header is 2)
-    UNIQUE (instrument_id, measured_at, lot_id, check_type, measured)
+    line              BIGINT NOT NULL         -- physical line in the source file (the header is line 1)
 );
+-- Exact duplicates are skipped by ingest with an anti-join (pipeline/sources/ingest.py), which is
+-- cheaper at fleet size than a five-column unique index.

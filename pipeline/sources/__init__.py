@@ -1,0 +1,1 @@
+"""Source profiles, readers, row rules, ingest, ledger and operator pseudonymisation."""

@@ -1,0 +1,468 @@
+"""Ingest source files into the database: one transaction and one ledger row per file.
+
+Every file is read by DuckDB's own readers as text (no Python loop per row), staged in a
+temporary table with its physical line numbers, then parsed and validated in SQL. Each
+problem of a row becomes a quarantine row; good rows are converted to g/210L and UTC,
+exact duplicates are skipped and counted, and the ledger keeps
+rows_read = rows_stored + rows_duplicate + rows_quarantined.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import re
+from collections.abc import Callable, Iterable
+from dataclasses import asdict, dataclass
+from datetime import datetime, timezone
+from pathlib import Path
+
+import duckdb
+
+from pipeline import __version__
+from pipeline.errors import InputError, QuarantineReason as Q
+from pipeline.settings import Settings
+from pipeline.sources.profiles import (CANONICAL, CANONICAL_COLUMNS, CHECK_TYPES, OUTCOMES, TABLES,
+                                       SourceProfile)
+from pipeline.sources.pseudonymise import operator_key, pseudonymise
+from pipeline.units import _SPELLINGS, TO_STORAGE
+
+
+@dataclass(frozen=True)
+class FileResult:
+    """The ledger row of one ingested file."""
+
+    file_id: int
+    path: str
+    table: str
+    profile: str
+    rows_read: int
+    rows_stored: int
+    rows_duplicate: int
+    rows_quarantined: int
+    started_at: str
+    finished_at: str
+
+    def as_dict(self) -> dict:
+        return asdict(self)
+
+
+def sha256_file(path: Path) -> str:
+    digest = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+def _format(path: Path, profile: SourceProfile) -> str:
+    if profile.format:
+        return profile.format
+    suffix = path.suffix.lower()
+    if suffix in (".jsonl", ".ndjson", ".json"):
+        return "jsonl"
+    if suffix == ".parquet":
+        return "parquet"
+    return "csv"
+
+
+def _header(path: Path, profile: SourceProfile) -> list[str]:
+    try:
+        with open(path, encoding=profile.encoding, newline="") as fh:
+            first = fh.readline().rstrip("\r\n")
+    except (OSError, UnicodeDecodeError, LookupError) as exc:
+        raise InputError(f"cannot read file: {exc}", file=str(path)) from exc
+    return [c.strip().strip('"') for c in first.split(profile.delimiter)]
+
+
+def detect_table(path: Path, columns: list[str], profile: SourceProfile, table: str | None) -> str:
+    """--table, else the profile's table, else the file name (sites.csv), else the header."""
+    if table:
+        if table not in TABLES:
+            raise InputError(f"unknown table '{table}' (one of {', '.join(TABLES)})", file=str(path))
+        return table
+    if profile.table:
+        return profile.table
+    if path.stem in TABLES:
+        return path.stem
+    for name, cols in CANONICAL_COLUMNS.items():
+        if set(cols) == set(columns):
+            return name
+    return "checks"
+
+
+def _quoted_field_pattern(delim: str) -> str:
+    """RE2 pattern whose group 1 is each field of a line with double-quoted fields."""
+    d = re.escape(delim)
+    return f'(?:^|{d})("(?:[^"]|"")*"|[^{d}"]*)'
+
+
+def _stage(con: duckdb.DuckDBPyConnection, path: Path, profile: SourceProfile, table: str) -> None:
+    """Create temp table _src(line, _malformed, _raw, <canonical columns as VARCHAR>, _tz)."""
+    fmt = _format(path, profile)
+    wanted = list(CANONICAL_COLUMNS[table])
+    if table == "checks" and profile.time_zone_column:
+        wanted.append("_tz")
+    source_name = {c: profile.source_column(c) for c in wanted}
+    if "_tz" in source_name:
+        source_name["_tz"] = profile.time_zone_column
+    if fmt == "csv":
+        header = _header(path, profile) if profile.header else [str(i) for i in range(1, 10_000)]
+        index = {name: i + 1 for i, name in enumerate(header)}
+        n_fields = len(header) if profile.header else None
+        select = []
+        for col in wanted:
+            i = index.get(source_name[col])
+            expr = (f"NULLIF(replace(trim(trim(_f[{i}]), '\"'), '\"\"', '\"'), '')" if i
+                    else "NULL::VARCHAR")
+            select.append(f"{expr} AS {col}")
+        malformed = f"len(_f) <> {n_fields}" if n_fields else "false"
+        try:
+            con.execute(
+                f"""CREATE OR REPLACE TEMP TABLE _src AS
+                SELECT line, {malformed} AS _malformed, _raw, {', '.join(select)}
+                FROM (SELECT ordinality AS line, rtrim(raw, chr(13)) AS _raw,
+                             CASE WHEN contains(raw, '"')
+                                  THEN regexp_extract_all(rtrim(raw, chr(13)), $quoted, 1)
+                                  ELSE string_split(rtrim(raw, chr(13)), $delim) END AS _f
+                      FROM read_csv($path, columns={{'raw': 'VARCHAR'}}, delim=chr(1), quote='',
+                                    escape='', header=false, auto_detect=false, encoding=$enc,
+                                    strict_mode=false) WITH ORDINALITY)
+                WHERE line > {1 if profile.header else 0}""",
+                {"path": str(path), "delim": profile.delimiter, "enc": profile.encoding,
+                 "quoted": _quoted_field_pattern(profile.delimiter)})
+        except duckdb.Error as exc:
+            raise InputError(f"cannot read file: {str(exc).splitlines()[0]}", file=str(path)) from exc
+        return
+    reader = ("read_json($path, format='newline_delimited', records=true)" if fmt == "jsonl"
+              else "read_parquet($path)")
+    try:
+        cols = [r[0] for r in con.execute(f"DESCRIBE SELECT * FROM {reader}", {"path": str(path)}).fetchall()]
+        select = []
+        for col in wanted:
+            src = source_name[col]
+            expr = f'NULLIF(trim(CAST("{src.replace(chr(34), "")}" AS VARCHAR)), \'\')' if src in cols else "NULL::VARCHAR"
+            select.append(f"{expr} AS {col}")
+        con.execute(
+            f"""CREATE OR REPLACE TEMP TABLE _src AS
+            SELECT ordinality AS line, false AS _malformed, NULL::VARCHAR AS _raw, {', '.join(select)}
+            FROM {reader} WITH ORDINALITY""", {"path": str(path)})
+    except duckdb.Error as exc:
+        raise InputError(f"cannot read file: {str(exc).splitlines()[0]}", file=str(path)) from exc
+
+
+def _exec(con: duckdb.DuckDBPyConnection, sql: str, params: dict | None = None):
+    """Execute with only the $parameters the statement names (DuckDB rejects extra ones)."""
+    import re
+    used = set(re.findall(r"\$([a-z_]+)", sql))
+    return con.execute(sql, {k: v for k, v in (params or {}).items() if k in used} or None)
+
+
+def _num(col: str, decimal: str) -> str:
+    return f"TRY_CAST(replace({col}, ',', '.') AS DOUBLE)" if decimal == "," else f"TRY_CAST({col} AS DOUBLE)"
+
+
+def _mapping_tables(con: duckdb.DuckDBPyConnection, profile: SourceProfile) -> None:
+    units = list(_SPELLINGS.items())
+    con.execute("CREATE OR REPLACE TEMP TABLE _units AS SELECT unnest($s) AS spelling, unnest($k) AS ukey, "
+                "unnest($f) AS factor",
+                {"s": [s for s, _ in units], "k": [k for _, k in units], "f": [TO_STORAGE[k] for _, k in units]})
+    for name, canon, spell in (("_check_types", CHECK_TYPES, profile.check_type),
+                               ("_outcomes", OUTCOMES, profile.outcome)):
+        pairs = {c: c for c in canon}
+        for c, spellings in spell.items():
+            for s in spellings:
+                pairs[s.strip().lower()] = c
+        con.execute(f"CREATE OR REPLACE TEMP TABLE {name} AS SELECT unnest($s) AS spelling, unnest($c) AS canon",
+                    {"s": list(pairs), "c": list(pairs.values())})
+
+
+# (field, reason, condition over _p, message) for checks; conditions apply only to well-formed rows.
+_CHECK_RULES = [
+    ("instrument_id", Q.MISSING_FIELD, "instrument_id IS NULL", "'instrument_id is missing'"),
+    ("measured_at", Q.MISSING_FIELD, "measured_at IS NULL", "'measured_at is missing'"),
+    ("lot_id", Q.MISSING_FIELD, "lot_id IS NULL", "'lot_id is missing'"),
+    ("check_type", Q.MISSING_FIELD, "check_type IS NULL", "'check_type is missing'"),
+    ("target", Q.MISSING_FIELD, "target IS NULL", "'target is missing'"),
+    ("measured", Q.MISSING_FIELD, "measured IS NULL", "'measured is missing'"),
+    ("units", Q.MISSING_FIELD, "units_eff IS NULL", "'units is missing'"),
+    ("target", Q.UNPARSABLE_FIELD, "target IS NOT NULL AND target_n IS NULL", "'target is not a number'"),
+    ("measured", Q.UNPARSABLE_FIELD, "measured IS NOT NULL AND measured_n IS NULL", "'measured is not a number'"),
+    ("simulator_temp_c", Q.UNPARSABLE_FIELD, "simulator_temp_c IS NOT NULL AND temp_n IS NULL",
+     "'simulator_temp_c is not a number'"),
+    ("pressure_kpa", Q.UNPARSABLE_FIELD, "pressure_kpa IS NOT NULL AND pressure_n IS NULL",
+     "'pressure_kpa is not a number'"),
+    ("units", Q.UNKNOWN_UNIT, "units_eff IS NOT NULL AND factor IS NULL",
+     "'unknown unit (g/210L, mg/L or ug/100mL)'"),
+    ("measured_at", Q.UNPARSABLE_FIELD, "measured_at IS NOT NULL AND local_at IS NULL AND offset_at IS NULL",
+     "'timestamp cannot be parsed'"),
+    ("time_zone", Q.MISSING_FIELD, "local_at IS NOT NULL AND zone_raw IS NULL",
+     "'no time zone for a local timestamp'"),
+    ("time_zone", Q.UNPARSABLE_FIELD, "local_at IS NOT NULL AND zone_raw IS NOT NULL AND zone IS NULL",
+     "'unknown IANA time zone'"),
+    ("measured_at", Q.NONEXISTENT_LOCAL_TIME, "gap", "'local time does not exist in ' || zone || ' (daylight-saving gap)'"),
+    ("measured_at", Q.AMBIGUOUS_LOCAL_TIME, "overlap", "'local time is ambiguous in ' || zone || ' (daylight-saving overlap)'"),
+    ("measured", Q.OUT_OF_RANGE, "measured_g < $mmin OR measured_g > $mmax",
+     "'measured ' || round(measured_g, 4) || ' g/210L is outside the physical range'"),
+    ("target", Q.OUT_OF_RANGE, "target_g <= 0 OR target_g > $mmax",
+     "'target ' || round(target_g, 4) || ' g/210L is outside the physical range'"),
+    ("measured_at", Q.FUTURE_TIMESTAMP, "at_utc > $future", "'timestamp is in the future'"),
+    ("measured_at", Q.BEFORE_IN_SERVICE, "at_utc < in_service_on",
+     "'before the instrument entered service on ' || in_service_on"),
+    ("lot_id", Q.UNKNOWN_LOT, "lot_id IS NOT NULL AND NOT lot_known", "'lot not in the lots table'"),
+    ("instrument_id", Q.UNKNOWN_INSTRUMENT, "instrument_id IS NOT NULL AND NOT inst_known",
+     "'instrument not in the instruments table'"),
+    ("check_type", Q.UNKNOWN_CHECK_TYPE, "check_type IS NOT NULL AND ct IS NULL", "'unknown check type'"),
+    ("outcome", Q.UNKNOWN_OUTCOME, "outcome IS NOT NULL AND oc IS NULL", "'unknown outcome'"),
+]
+
+
+def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settings: Settings, now: datetime) -> dict:
+    _mapping_tables(con, profile)
+    d = profile.decimal
+    if profile.time_zone_column:
+        zone_expr = "s._tz"
+    elif profile.time_zone_from_site:
+        zone_expr = "site.time_zone"
+    elif profile.time_zone:
+        zone_expr = "$zone"
+    else:
+        zone_expr = "site.time_zone"   # canonical files: the site's zone for a time without offset
+    has_offset = r"regexp_matches(s.measured_at, '(Z|[+-]\d\d(:?\d\d)?)$')"
+    local = (f"try_strptime(s.measured_at, $tfmt)" if profile.time_format
+             else f"CASE WHEN NOT {has_offset} THEN TRY_CAST(s.measured_at AS TIMESTAMP) END")
+    offset = ("NULL::TIMESTAMP" if profile.time_format
+              else f"CASE WHEN {has_offset} THEN TRY_CAST(s.measured_at AS TIMESTAMPTZ) AT TIME ZONE 'UTC' END")
+    params = {"zone": profile.time_zone, "units": profile.units}
+    if profile.time_format:
+        params["tfmt"] = profile.time_format
+    _exec(con, f"""
+        CREATE OR REPLACE TEMP TABLE _p1 AS
+        SELECT s.*, {_num('s.target', d)} AS target_n, {_num('s.measured', d)} AS measured_n,
+               {_num('s.simulator_temp_c', d)} AS temp_n, {_num('s.pressure_kpa', d)} AS pressure_n,
+               u.factor, ct.canon AS ct, oc.canon AS oc,
+               {local} AS local_at, {offset} AS offset_at,
+               {zone_expr} AS zone_raw, z.name AS zone,
+               i.in_service_on, i.instrument_id IS NOT NULL AS inst_known
+        FROM (SELECT *, coalesce(units, $units) AS units_eff FROM _src) s
+        LEFT JOIN _units u ON lower(trim(s.units_eff)) = u.spelling
+        LEFT JOIN _check_types ct ON lower(s.check_type) = ct.spelling
+        LEFT JOIN _outcomes oc ON lower(s.outcome) = oc.spelling
+        LEFT JOIN instruments i ON i.instrument_id = s.instrument_id
+        LEFT JOIN sites site ON site.site_id = s.site_id
+        LEFT JOIN (SELECT name FROM pg_timezone_names()) z ON z.name = {zone_expr}
+    """, params)
+    # local -> UTC; a round trip that does not return the same wall time is a gap, one that has a
+    # second UTC instant an hour (or half an hour) away with the same wall time is an overlap.
+    con.execute("""
+        CREATE OR REPLACE TEMP TABLE _p AS
+        WITH a AS (
+          SELECT *, CASE WHEN local_at IS NOT NULL AND zone IS NOT NULL THEN timezone(zone, local_at) END AS _tz_at
+          FROM _p1),
+        b AS (
+          SELECT *,
+            _tz_at IS NOT NULL AND timezone(zone, _tz_at) <> local_at AS gap,
+            _tz_at IS NOT NULL AND timezone(zone, _tz_at) = local_at AND (
+               timezone(zone, _tz_at + INTERVAL 1 HOUR) = local_at OR timezone(zone, _tz_at - INTERVAL 1 HOUR) = local_at
+               OR timezone(zone, _tz_at + INTERVAL 30 MINUTE) = local_at
+               OR timezone(zone, _tz_at - INTERVAL 30 MINUTE) = local_at) AS overlap
+          FROM a)
+        SELECT b.* EXCLUDE (_tz_at),
+               coalesce(offset_at, CASE WHEN NOT gap AND NOT overlap THEN _tz_at AT TIME ZONE 'UTC' END) AS at_utc,
+               target_n * factor AS target_g, measured_n * factor AS measured_g,
+               l.lot_id IS NOT NULL AS lot_known
+        FROM b LEFT JOIN lots l ON l.lot_id = b.lot_id
+    """)
+    return {"mmin": settings.ingest.measured_min, "mmax": settings.ingest.measured_max,
+            "future": (now.replace(tzinfo=None) if now.tzinfo is None
+                       else now.astimezone(timezone.utc).replace(tzinfo=None))
+            + _hours(settings.ingest.future_tolerance_hours)}
+
+
+def _hours(h: float):
+    from datetime import timedelta
+    return timedelta(hours=h)
+
+
+def _quarantine(con: duckdb.DuckDBPyConnection, file_id: int, rules, params: dict, source: str = "_p",
+                value_columns: dict[str, str] | None = None) -> int:
+    """Write one quarantine row per problem; mark bad rows in _bad(line). Returns rows quarantined."""
+    parts = ["SELECT line, NULL AS field, _raw AS value, 'malformed_line' AS reason, "
+             "'wrong number of fields' AS message FROM " + source + " WHERE _malformed"]
+    for field, reason, cond, message in rules:
+        value = (value_columns or {}).get(field, field)
+        parts.append(f"SELECT line, '{field}', {value}, '{reason.value}', {message} FROM {source} "
+                     f"WHERE NOT _malformed AND coalesce(({cond}), false)")
+    _exec(con, "CREATE OR REPLACE TEMP TABLE _problems AS " + " UNION ALL ".join(parts), params)
+    con.execute("""INSERT INTO quarantine (file_id, line, field, value, reason, message, raw_line)
+                   SELECT $fid, p.line, p.field, p.value, p.reason, p.message, s._raw
+                   FROM _problems p JOIN _src s USING (line) ORDER BY p.line""", {"fid": file_id})
+    con.execute("CREATE OR REPLACE TEMP TABLE _bad AS SELECT DISTINCT line FROM _problems")
+    return con.execute("SELECT count(*) FROM _bad").fetchone()[0]
+
+
+def _store_checks(con, file_id: int, key: bytes) -> int:
+    ops = [r[0] for r in con.execute("SELECT DISTINCT operator_id FROM _p WHERE operator_id IS NOT NULL").fetchall()]
+    con.execute("CREATE OR REPLACE TEMP TABLE _ops AS SELECT unnest($c) AS code, unnest($h) AS hashed",
+                {"c": ops, "h": [pseudonymise(o, key) for o in ops]})
+    lo, hi = con.execute("SELECT min(at_utc), max(at_utc) FROM _p").fetchone()
+    before = con.execute("SELECT count(*) FROM checks").fetchone()[0]
+    con.execute("""
+        INSERT INTO checks (check_id, instrument_id, measured_at, lot_id, check_type, target, measured, units,
+                            simulator_temp_c, pressure_kpa, site_id, operator_id, outcome, file_id, line)
+        WITH good AS (
+          SELECT p.* FROM _p p ANTI JOIN _bad b ON b.line = p.line),
+        firsts AS (
+          SELECT * FROM good
+          QUALIFY row_number() OVER (PARTITION BY instrument_id, at_utc, lot_id, ct, measured_g ORDER BY line) = 1),
+        existing AS (
+          SELECT instrument_id, measured_at, lot_id, check_type, measured FROM checks
+          WHERE measured_at BETWEEN $lo AND $hi),
+        new AS (
+          SELECT f.* FROM firsts f ANTI JOIN existing e
+            ON e.instrument_id = f.instrument_id AND e.measured_at = f.at_utc AND e.lot_id = f.lot_id
+           AND e.check_type = f.ct AND e.measured = f.measured_g)
+        SELECT (SELECT coalesce(max(check_id), 0) FROM checks) + row_number() OVER (ORDER BY line),
+               instrument_id, at_utc, lot_id, ct, target_g, measured_g, units_eff, temp_n, pressure_n,
+               site_id, o.hashed, oc, $fid, line
+        FROM new LEFT JOIN _ops o ON o.code = new.operator_id
+        ORDER BY line
+    """, {"lo": lo, "hi": hi, "fid": file_id})
+    return con.execute("SELECT count(*) FROM checks").fetchone()[0] - before
+
+
+# Reference tables: (column, SQL type); key columns; required columns.
+_REF_TYPES = {
+    "sites": {"latitude": "DOUBLE", "longitude": "DOUBLE", "elevation_m": "DOUBLE"},
+    "instruments": {"in_service_on": "DATE", "latitude": "DOUBLE", "longitude": "DOUBLE"},
+    "lots": {"target": "DOUBLE", "expanded_uncertainty": "DOUBLE", "certified_on": "DATE", "expires_on": "DATE"},
+    "service_events": {"event_at": "TIMESTAMPTZ"},
+}
+_REF_KEYS = {"sites": ["site_id"], "instruments": ["instrument_id"], "lots": ["lot_id"],
+             "service_events": ["instrument_id", "event_at", "event_type"]}
+_REF_REQUIRED = {"sites": ["site_id", "time_zone"], "instruments": ["instrument_id", "technology"],
+                 "lots": ["lot_id", "standard_kind", "target", "units"],
+                 "service_events": ["instrument_id", "event_at", "event_type"]}
+
+
+def _ingest_reference(con, table: str, profile: SourceProfile, file_id: int) -> tuple[int, int, int]:
+    _mapping_tables(con, profile)
+    types = _REF_TYPES[table]
+    cols = list(CANONICAL_COLUMNS[table])
+    conv, rules = [], []
+    for c in cols:
+        t = types.get(c)
+        if t == "DOUBLE":
+            conv.append(f"{_num('s.' + c, profile.decimal)} AS {c}_v")
+        elif t == "TIMESTAMPTZ":
+            conv.append(f"TRY_CAST(s.{c} AS TIMESTAMPTZ) AT TIME ZONE 'UTC' AS {c}_v")
+        elif t:
+            conv.append(f"TRY_CAST(s.{c} AS {t}) AS {c}_v")
+        else:
+            conv.append(f"s.{c} AS {c}_v")
+        if c in _REF_REQUIRED[table]:
+            rules.append((c, Q.MISSING_FIELD, f"{c} IS NULL", f"'{c} is missing'"))
+        if t:
+            rules.append((c, Q.UNPARSABLE_FIELD, f"{c} IS NOT NULL AND {c}_v IS NULL", f"'{c} cannot be parsed'"))
+    extra = ""
+    if table == "sites":
+        extra = ", z.name IS NOT NULL AS zone_ok"
+        rules.append(("time_zone", Q.UNPARSABLE_FIELD, "time_zone IS NOT NULL AND NOT zone_ok", "'unknown IANA time zone'"))
+    if table == "lots":
+        extra = ", u.factor, u.ukey"
+        rules.append(("units", Q.UNKNOWN_UNIT, "units IS NOT NULL AND factor IS NULL", "'unknown unit'"))
+    joins = {"sites": "LEFT JOIN (SELECT name FROM pg_timezone_names()) z ON z.name = s.time_zone",
+             "lots": "LEFT JOIN _units u ON lower(trim(s.units)) = u.spelling"}.get(table, "")
+    con.execute(f"CREATE OR REPLACE TEMP TABLE _p AS SELECT s.*, {', '.join(conv)}{extra} FROM _src s {joins}")
+    quarantined = _quarantine(con, file_id, rules, {})
+    values = []
+    for c in cols:
+        if table == "lots" and c in ("target", "expanded_uncertainty"):
+            values.append(f"{c}_v * factor AS {c}")
+        else:
+            values.append(f"{c}_v AS {c}")
+    keys = ", ".join(_REF_KEYS[table])
+    con.execute(f"""CREATE OR REPLACE TEMP TABLE _ref AS
+        SELECT {', '.join(values)} FROM _p ANTI JOIN _bad USING (line)
+        QUALIFY row_number() OVER (PARTITION BY {', '.join(c + '_v' for c in _REF_KEYS[table])} ORDER BY line DESC) = 1""")
+    good = con.execute("SELECT count(*) FROM _p ANTI JOIN _bad USING (line)").fetchone()[0]
+    col_list = ", ".join(cols)
+    con.execute(f"CREATE OR REPLACE TEMP TABLE _changed AS SELECT {col_list} FROM _ref "
+                f"EXCEPT SELECT {col_list} FROM {table}")
+    stored = con.execute("SELECT count(*) FROM _changed").fetchone()[0]
+    con.execute(f"INSERT OR REPLACE INTO {table} ({col_list}) SELECT {col_list} FROM _changed")
+    del keys
+    return stored, good - stored, quarantined
+
+
+def ingest_file(con: duckdb.DuckDBPyConnection, path: str | Path, settings: Settings,
+                profile: SourceProfile | None = None, table: str | None = None,
+                now: datetime | None = None, key: bytes | None = None) -> FileResult:
+    """Ingest one file as one transaction and return its ledger row."""
+    path = Path(path)
+    profile = profile or CANONICAL
+    if not path.is_file():
+        raise InputError("cannot read file: no such file", file=str(path))
+    try:
+        digest = sha256_file(path)
+    except OSError as exc:
+        raise InputError(f"cannot read file: {exc.strerror}", file=str(path)) from exc
+    now = now or datetime.now(timezone.utc)
+    started = datetime.now(timezone.utc).replace(tzinfo=None)
+    fmt = _format(path, profile)
+    header = _header(path, profile) if fmt == "csv" else []
+    table = detect_table(path, header, profile, table)
+    if key is None:
+        key = operator_key(settings.ingest.operator_key_file)
+    con.execute("BEGIN TRANSACTION")
+    try:
+        file_id = con.execute("SELECT coalesce(max(file_id), 0) + 1 FROM ingest_ledger").fetchone()[0]
+        _stage(con, path, profile, table)
+        read = con.execute("SELECT count(*) FROM _src").fetchone()[0]
+        if table == "checks":
+            params = _parse_checks(con, profile, settings, now)
+            quarantined = _quarantine(con, file_id, _CHECK_RULES, params, value_columns={"time_zone": "zone_raw"})
+            stored = _store_checks(con, file_id, key)
+            duplicate = read - quarantined - stored
+        else:
+            stored, duplicate, quarantined = _ingest_reference(con, table, profile, file_id)
+        finished = datetime.now(timezone.utc).replace(tzinfo=None)
+        con.execute("""INSERT INTO ingest_ledger VALUES ($fid, $path, $sha, $table, $profile, $read, $stored,
+                       $dup, $q, $started, $finished, $ver)""",
+                    {"fid": file_id, "path": str(path.resolve()), "sha": digest, "table": table,
+                     "profile": profile.name, "read": read, "stored": stored, "dup": duplicate,
+                     "q": quarantined, "started": started, "finished": finished, "ver": __version__})
+        for t in ("_src", "_p1", "_p", "_problems", "_bad", "_ops", "_ref", "_changed"):
+            con.execute(f"DROP TABLE IF EXISTS {t}")
+        con.execute("COMMIT")
+    except BaseException:
+        con.execute("ROLLBACK")
+        raise
+    return FileResult(file_id, str(path.resolve()), table, profile.name, read, stored, duplicate, quarantined,
+                      started.isoformat(), finished.isoformat())
+
+
+def expand_paths(paths: Iterable[str | Path]) -> list[Path]:
+    """Files named, and the files inside directories named (sorted)."""
+    out: list[Path] = []
+    for p in paths:
+        p = Path(p)
+        if p.is_dir():
+            out.extend(sorted(q for q in p.rglob("*") if q.is_file()
+                              and q.suffix.lower() in (".csv", ".jsonl", ".ndjson", ".parquet", ".txt")))
+        else:
+            out.append(p)
+    return out
+
+
+def ingest_paths(con: duckdb.DuckDBPyConnection, paths: Iterable[str | Path], settings: Settings,
+                 profile: SourceProfile | None = None, table: str | None = None,
+                 on_file: Callable[[FileResult], None] | None = None) -> list[FileResult]:
+    """Ingest files in order, each committed on its own; a fatal error leaves earlier files committed."""
+    key = operator_key(settings.ingest.operator_key_file)
+    results = []
+    for path in expand_paths(paths):
+        result = ingest_file(con, path, settings, profile, table, key=key)
+        results.append(result)
+        if on_file:
+            on_file(result)
+    return results
