@@ -334,6 +334,13 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
     if len(sig):
         cs = settings.charts
         sig = sig.sort_values(["measured_at", "instrument_id", "level", "chart", "rule"], kind="stable").reset_index(drop=True)
+        # Run length of each signal: checks since the previous signal of the same chart, rule and
+        # side in this run (or since the segment began), the in-control run length it is tested on.
+        sig["position"] = sig["position"].fillna(1).astype(np.int64)
+        order = sig.sort_values(["instrument_id", "level", "chart", "rule", "direction", "position"], kind="stable")
+        prev = order.groupby(["instrument_id", "level", "chart", "rule", "direction"], observed=True)["position"].shift()
+        run = np.where(prev.isna() | (prev >= order["position"]), order["position"], order["position"] - prev)
+        sig["position"] = pd.Series(run, index=order.index).reindex(sig.index).astype(np.int64)
         sig["p_value"] = signal_p_values(sig, k=params["cusum"]["k"], h=params["cusum"]["h"],
                                          lam=params["ewma"]["lam"], L=params["ewma"]["L"])
         fs = fleet_significance(sig["p_value"].to_numpy(), cs.fleet_fdr_q)
