@@ -20,7 +20,7 @@ from demo_fleet.checks import simulate_month
 from demo_fleet.scenario import (
     AGENCY, DAY, KINDS, LEVELS, REGIONS, ZONES, Scenario, build_scenario, month_starts,
 )
-from demo_fleet.writers import CANONICAL_COLUMNS, LAYOUT_CODES, copy_rows, month_table, register_dimensions
+from demo_fleet.writers import CANONICAL_COLUMNS, LAYOUT_CODES, copy_rows, month_table
 
 PROFILES_DIR = Path(__file__).resolve().parent / "profiles"
 DEFAULT_END = date(2026, 11, 29)
@@ -204,7 +204,7 @@ def generate_demo_fleet(out_dir: str | Path, instruments: int = 300, months: int
 
     con = duckdb.connect()
     con.execute("SET threads TO 2")
-    register_dimensions(con, sc)
+    con.execute("SET preserve_insertion_order = true")
     starts = month_starts(end, months)
     re_month = max(0, months - 2)
     layouts_present = [lay for lay in ("canonical", "mgl", "ugdl", "local") if (sc.site_layout == lay).any()]

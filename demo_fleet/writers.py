@@ -35,16 +35,9 @@ def local_epoch(sc: Scenario, t: np.ndarray, zone: np.ndarray) -> np.ndarray:
     return out
 
 
-def register_dimensions(con: duckdb.DuckDBPyConnection, sc: Scenario) -> None:
-    """Small lookup tables the COPY statements join to: units, sites, lots, operators."""
-    con.register("dim_unit", pa.table({"u": np.arange(sc.n_units),
-                                       "instrument_id": sc.instruments["instrument_id"].to_numpy(str)}))
-    con.register("dim_site", pa.table({"s": np.arange(len(sc.sites)), "site_id": sc.sites["site_id"].to_numpy(str),
-                                       "tz": sc.sites["time_zone"].to_numpy(str)}))
-    con.register("dim_lot", pa.table({"l": np.arange(len(sc.lots)), "lot_id": sc.lots["lot_id"].to_numpy(str)}))
-    con.register("dim_op", pa.table({"o": np.arange(len(sc.operator_codes)), "operator_id": sc.operator_codes}))
-    con.register("dim_type", pa.table({"c": np.arange(4), "check_type": CHECK_TYPES}))
-    con.register("dim_outcome", pa.table({"r": np.arange(4), "outcome": OUTCOMES}))
+def _coded(codes: np.ndarray, labels) -> pa.DictionaryArray:
+    """Text column as dictionary codes: no string per row is built in Python."""
+    return pa.DictionaryArray.from_arrays(pa.array(codes, type=pa.int32()), pa.array(np.asarray(labels, dtype=str)))
 
 
 def month_table(sc: Scenario, m: dict[str, np.ndarray]) -> pa.Table:
@@ -53,9 +46,14 @@ def month_table(sc: Scenario, m: dict[str, np.ndarray]) -> pa.Table:
     local = local_epoch(sc, m["t"], zone)
     offset_min = (local - m["t"]) // 60
     return pa.table({
-        "seq": np.arange(len(m["t"])),
-        "u": m["unit"], "s": m["site"], "l": m["lot"], "o": m["operator"], "c": m["check_type"],
-        "r": m["outcome"], "kind": m["kind"],
+        "instrument_id": _coded(m["unit"], sc.instruments["instrument_id"]),
+        "site_id": _coded(m["site"], sc.sites["site_id"]),
+        "tz": _coded(m["site"], sc.sites["time_zone"]),
+        "lot_id": _coded(m["lot"], sc.lots["lot_id"]),
+        "operator_id": _coded(m["operator"], sc.operator_codes),
+        "check_type": _coded(m["check_type"], CHECK_TYPES),
+        "outcome": _coded(m["outcome"], OUTCOMES),
+        "kind": m["kind"],
         "layout": np.array([LAYOUT_CODES[x] for x in sc.site_layout])[m["site"]],
         "local_ts": local.astype("datetime64[s]"), "offset_min": offset_min,
         "target_milli": np.rint(np.asarray(LEVELS)[m["level"]] * 1000).astype(np.int64),
@@ -67,11 +65,6 @@ def month_table(sc: Scenario, m: dict[str, np.ndarray]) -> pa.Table:
     })
 
 
-_JOINS = """
-FROM month m
-JOIN dim_unit USING (u) JOIN dim_site USING (s) JOIN dim_lot USING (l) JOIN dim_op USING (o)
-JOIN dim_type USING (c) JOIN dim_outcome USING (r)
-"""
 
 _ISO_OFFSET = """strftime(m.local_ts, '%Y-%m-%dT%H:%M:%S')
   || CASE WHEN m.offset_min < 0 THEN '-' ELSE '+' END
@@ -109,7 +102,7 @@ DELIMITERS = {"canonical": ",", "mgl": ";", "ugdl": ",", "local": ","}
 def copy_rows(con: duckdb.DuckDBPyConnection, layout: str, where: str, path: Path) -> int:
     """Write the rows of registered table `month` matching `where` in `layout` to `path`; return the count."""
     path.parent.mkdir(parents=True, exist_ok=True)
-    sql = f"{SELECTS[layout]} {_JOINS} WHERE {where} ORDER BY m.seq"
+    sql = f"{SELECTS[layout]} FROM month m WHERE {where}"     # a filtered scan keeps insertion order
     delim = DELIMITERS[layout]
     target = path.as_posix().replace("'", "''")
     con.execute(f"COPY ({sql}) TO '{target}' (HEADER, DELIMITER '{delim}', QUOTE '\"')").fetchall()
