@@ -105,6 +105,9 @@ class ModelSettings:
     acceptance_beta: float = 0.01       # chance of accepting a lot that is off by delta
     acceptance_max_checks: int = 2000   # first checks per lot the rule looks at
     diagnostics_sample: int = 200000    # checks sampled for residual diagnostics
+    # DuckDB memory limit while the model reads check_results (it spills to disk beyond it);
+    # the connection's own limit is restored afterwards. Empty keeps the connection's limit.
+    duckdb_memory_limit: str = "2GB"
 
 
 @dataclass(frozen=True)

@@ -26,6 +26,7 @@ from __future__ import annotations
 
 import datetime as dt
 import json
+import re
 import time
 from dataclasses import asdict, dataclass, field
 
@@ -36,6 +37,7 @@ from scipy import stats
 
 from pipeline import __version__
 from pipeline.db import query_df, sql_text, transaction
+from pipeline.errors import InputError
 from pipeline.models.diagnostics import Diagnostic, residual_diagnostics
 from pipeline.models.lot_acceptance import SprtResult, run_sprt
 from pipeline.models.lot_verdicts import classify_lot, verdict_since
@@ -96,7 +98,13 @@ def fit_fleet_model(con: duckdb.DuckDBPyConnection, settings: Settings) -> Fleet
         return _empty_result(settings, fitted_at, started, "no checks with a relative error: nothing to fit")
     window_end = pd.Timestamp(end).to_pydatetime()
     window_start = window_end - dt.timedelta(days=ms.window_days)
-    con.execute(sql_text("queries/model_base"), {"window_start": window_start, "window_end": window_end})
+    previous_limit = con.execute("SELECT current_setting('memory_limit')").fetchone()[0]
+    if ms.duckdb_memory_limit:
+        _set_memory_limit(con, ms.duckdb_memory_limit)
+    try:
+        con.execute(sql_text("queries/model_base"), {"window_start": window_start, "window_end": window_end})
+    finally:
+        _set_memory_limit(con, previous_limit)
     sql_s = time.perf_counter() - started
     try:
         result = _fit_window(con, settings, fitted_at, started, window_start, window_end)
@@ -167,6 +175,16 @@ def _fit_window(con, settings: Settings, fitted_at, started, window_start, windo
         warnings=fit.warnings, parameters=params, duration_s=time.perf_counter() - started,
         lot_effects=lots, unit_estimates=units, variance_components=variance, diagnostics=tuple(diags),
         acceptance=acceptance, fixed_effects=fixed)
+
+
+_MEMORY = re.compile(r"^\d+(\.\d+)?\s*(B|KB|MB|GB|TB|KiB|MiB|GiB|TiB)$")
+
+
+def _set_memory_limit(con, limit: str) -> None:
+    """SET takes no bound parameters, so the value is checked against a strict pattern first."""
+    if not _MEMORY.match(limit.strip()):
+        raise InputError(f"model.duckdb_memory_limit must look like '2GB', got {limit!r}")
+    con.execute(f"SET memory_limit = '{limit.strip()}'")
 
 
 def _previous_theta(con, groups: list[str]) -> np.ndarray | None:
