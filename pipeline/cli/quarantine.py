@@ -39,4 +39,6 @@ def command(db_path, reason, out, limit):
         return
     click.echo(f"{len(df):,} quarantined rows" + (f" ({reason})" if reason else ""))
     for r in df.head(limit).itertuples(index=False):
-        click.echo(f"{r.path}:{r.line} {r.reason} {r.field or ''}={r.value!s:.40} - {r.message}")
+        field = r.field if isinstance(r.field, str) else ""
+        value = r.value if isinstance(r.value, str) else ""
+        click.echo(f"{r.path}:{r.line} {r.reason} {field}={value:.40} - {r.message}")
