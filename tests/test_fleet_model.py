@@ -132,3 +132,17 @@ def test_lot_interval_coverage_across_simulated_fleets():
     # Nominal 95 % Wald coverage; Monte Carlo band: 4 binomial SEs over `total` intervals.
     band = 4 * np.sqrt(0.95 * 0.05 / total)
     assert abs(rate - 0.95) < band
+
+
+def test_memory_limit_is_checked_and_restored(planted):
+    import dataclasses
+
+    from pipeline.errors import InputError
+
+    con, _ = planted
+    before = con.execute("SELECT current_setting('memory_limit')").fetchone()[0]
+    fit_fleet_model(con, Settings())
+    assert con.execute("SELECT current_setting('memory_limit')").fetchone()[0] == before
+    bad = dataclasses.replace(Settings(), model=dataclasses.replace(Settings().model, duckdb_memory_limit="2GB'; DROP"))
+    with pytest.raises(InputError, match="model.duckdb_memory_limit must look like '2GB'"):
+        fit_fleet_model(con, bad)
