@@ -1,0 +1,80 @@
+"""Ingest speed: the full ingest of the 5,000 x 24 fleet against a bare DuckDB read_csv of the same files.
+
+Each run happens in a child process, so peak memory is that child's ru_maxrss. Prints rows/s of
+both, their ratio (target >= 0.5) and peak memory (target < 2 GB).
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+import time
+
+from benchmarks.fleet import ROOT, database_path, fleet_dir
+
+_INGEST = """
+import json, os, sys
+os.environ.setdefault("BREATHFLEET_OPERATOR_KEY", "benchmark-key")
+from pipeline.demo_job import run_demo_job
+from pipeline.settings import Settings
+s = run_demo_job(sys.argv[1], sys.argv[2], Settings())
+print(json.dumps({"rows": s.rows_read, "stored": s.rows_stored}))
+"""
+
+_BARE = """
+import glob, json, sys, duckdb
+out, db = sys.argv[1], sys.argv[2]
+con = duckdb.connect(db)
+rows = 0
+for i, e in enumerate(json.load(open(out + "/manifest.json"))):
+    files = sorted(glob.glob(out + "/" + e["path"]))
+    con.execute(f"CREATE TABLE t{i} AS SELECT * FROM read_csv($f, union_by_name=true)", {"f": files})
+    rows += con.execute(f"SELECT count(*) FROM t{i}").fetchone()[0]
+con.execute("CHECKPOINT")
+print(json.dumps({"rows": rows}))
+"""
+
+
+def _child(code: str, *args: str) -> tuple[dict, float, float]:
+    """Run code in a child; return its JSON, wall seconds and peak RSS in MB."""
+    import resource
+    started = time.perf_counter()
+    proc = subprocess.run([sys.executable, "-c", code, *args], cwd=ROOT, capture_output=True, text=True,
+                          env={**os.environ})
+    wall = time.perf_counter() - started
+    if proc.returncode != 0:
+        raise RuntimeError(proc.stderr[-2000:])
+    peak = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024  # max over children so far
+    return json.loads(proc.stdout.strip().splitlines()[-1]), wall, peak
+
+
+def main() -> None:
+    out = fleet_dir()
+    db = database_path()
+    work = db.with_name("ingest-bench.duckdb")
+    bare = db.with_name("bare-read.duckdb")
+    for p in (work, bare):
+        for q in (p, p.with_name(p.name + ".wal"), p.with_name(p.name + ".snapshot")):
+            q.unlink(missing_ok=True)
+    b, bare_s, peak_bare = _child(_BARE, str(out), str(bare))
+    r, ingest_s, peak_all = _child(_INGEST, str(out), str(work))
+    print(f"files: {out}")
+    print(f"bare read_csv : {b['rows']:,} rows in {bare_s:.1f} s = {b['rows'] / bare_s:,.0f} rows/s "
+          f"(peak {peak_bare:,.0f} MB)")
+    print(f"full ingest   : {r['rows']:,} rows ({r['stored']:,} stored) in {ingest_s:.1f} s = "
+          f"{r['rows'] / ingest_s:,.0f} rows/s")
+    ratio = (r["rows"] / ingest_s) / (b["rows"] / bare_s)
+    print(f"ratio ingest / bare = {ratio:.2f} (target >= 0.5); peak memory of the children "
+          f"{peak_all:,.0f} MB (target < 2,048 MB)")
+    bare.unlink(missing_ok=True)
+    if not db.exists():
+        os.replace(work, db)
+    else:
+        work.unlink(missing_ok=True)
+    work.with_name(work.name + ".snapshot").unlink(missing_ok=True)
+
+
+if __name__ == "__main__":
+    main()
