@@ -225,13 +225,15 @@ def state_counts(states: pd.DataFrame, by: list[str]) -> pd.DataFrame:
 def _default_queries(token: DataToken) -> list[tuple[str, dict[str, Any]]]:
     """The fleet-wide queries each page runs on its first render, with the pages' default parameters."""
     queries: list[tuple[str, dict[str, Any]]] = [
+        # the fleet page's queries first: a visitor arriving meanwhile waits for these (Streamlit
+        # computes a cached value once per key) instead of computing them a second time
         ("dashboard_data_range", {}), ("dashboard_unit_tolerance", {}),
         ("dashboard_unit_signal_counts", {"days": 7}), ("dashboard_signals_recent", {"days": 7}),
-        ("dashboard_queue", {}), ("dashboard_unit_list", {}), ("dashboard_levels", {}),
+        ("dashboard_fleet_trend", {}), ("dashboard_queue", {}), ("dashboard_unit_list", {}), ("dashboard_levels", {}),
         ("dashboard_lot_usage", {}), ("dashboard_lot_effects", {}), ("dashboard_lot_acceptance", {}),
         ("dashboard_ingest_ledger", {}), ("dashboard_quarantine_reasons", {}),
         ("dashboard_silent_units", {"days": settings().queue.silence_days}),
-        ("dashboard_verdict_disagreements", {}), ("dashboard_fleet_trend", {}),
+        ("dashboard_verdict_disagreements", {}),
     ]
     levels = _query(token, "dashboard_levels", ())
     if levels is not None and not levels.empty:
