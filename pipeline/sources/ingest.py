@@ -235,8 +235,7 @@ def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settin
     params = {"zone": profile.time_zone, "units": profile.units}
     if profile.time_format:
         params["tfmt"] = profile.time_format
-    _exec(con, f"""
-        CREATE OR REPLACE TEMP TABLE _p1 AS
+    p1 = f"""
         SELECT s.*, {_num('s.target', d)} AS target_n, {_num('s.measured', d)} AS measured_n,
                {_num('s.simulator_temp_c', d)} AS temp_n, {_num('s.pressure_kpa', d)} AS pressure_n,
                u.factor, ct.canon AS ct, oc.canon AS oc,
@@ -250,14 +249,15 @@ def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settin
         LEFT JOIN instruments i ON i.instrument_id = s.instrument_id
         LEFT JOIN sites site ON site.site_id = s.site_id
         LEFT JOIN (SELECT name FROM pg_timezone_names()) z ON z.name = {zone_expr}
-    """, params)
+    """
     # local -> UTC; a round trip that does not return the same wall time is a gap, one that has a
     # second UTC instant an hour (or half an hour) away with the same wall time is an overlap.
-    con.execute("""
+    _exec(con, """
         CREATE OR REPLACE TEMP TABLE _p AS
-        WITH a AS (
+        WITH p1 AS (""" + p1 + """),
+        a AS (
           SELECT *, CASE WHEN local_at IS NOT NULL AND zone IS NOT NULL THEN timezone(zone, local_at) END AS _tz_at
-          FROM _p1),
+          FROM p1),
         b AS (
           SELECT *,
             _tz_at IS NOT NULL AND timezone(zone, _tz_at) <> local_at AS gap,
@@ -271,7 +271,7 @@ def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settin
                target_n * factor AS target_g, measured_n * factor AS measured_g,
                l.lot_id IS NOT NULL AS lot_known
         FROM b LEFT JOIN lots l ON l.lot_id = b.lot_id
-    """)
+    """, params)
     return {"mmin": settings.ingest.measured_min, "mmax": settings.ingest.measured_max,
             "future": (now.replace(tzinfo=None) if now.tzinfo is None
                        else now.astimezone(timezone.utc).replace(tzinfo=None))
@@ -286,17 +286,20 @@ def _hours(h: float):
 def _quarantine(con: duckdb.DuckDBPyConnection, file_id: int, rules, params: dict, source: str = "_p",
                 value_columns: dict[str, str] | None = None) -> int:
     """Write one quarantine row per problem; mark bad rows in _bad(line). Returns rows quarantined."""
+    conds = [f"coalesce(({cond}), false)" for _, _, cond, _ in rules]
+    _exec(con, f"CREATE OR REPLACE TEMP TABLE _flagged AS SELECT * FROM {source} "
+               f"WHERE _malformed OR (NOT _malformed AND ({' OR '.join(conds) or 'false'}))", params)
     parts = ["SELECT line, NULL AS field, _raw AS value, 'malformed_line' AS reason, "
-             "'wrong number of fields' AS message FROM " + source + " WHERE _malformed"]
-    for field, reason, cond, message in rules:
+             "'wrong number of fields' AS message FROM _flagged WHERE _malformed"]
+    for (field, reason, _, message), cond in zip(rules, conds):
         value = (value_columns or {}).get(field, field)
-        parts.append(f"SELECT line, '{field}', {value}, '{reason.value}', {message} FROM {source} "
-                     f"WHERE NOT _malformed AND coalesce(({cond}), false)")
+        parts.append(f"SELECT line, '{field}', {value}, '{reason.value}', {message} FROM _flagged "
+                     f"WHERE NOT _malformed AND {cond}")
     _exec(con, "CREATE OR REPLACE TEMP TABLE _problems AS " + " UNION ALL ".join(parts), params)
     con.execute("""INSERT INTO quarantine (file_id, line, field, value, reason, message, raw_line)
                    SELECT $fid, p.line, p.field, p.value, p.reason, p.message, s._raw
                    FROM _problems p JOIN _src s USING (line) ORDER BY p.line""", {"fid": file_id})
-    con.execute("CREATE OR REPLACE TEMP TABLE _bad AS SELECT DISTINCT line FROM _problems")
+    con.execute("CREATE OR REPLACE TEMP TABLE _bad AS SELECT line FROM _flagged")
     return con.execute("SELECT count(*) FROM _bad").fetchone()[0]
 
 
@@ -431,7 +434,7 @@ def ingest_file(con: duckdb.DuckDBPyConnection, path: str | Path, settings: Sett
                     {"fid": file_id, "path": str(path.resolve()), "sha": digest, "table": table,
                      "profile": profile.name, "read": read, "stored": stored, "dup": duplicate,
                      "q": quarantined, "started": started, "finished": finished, "ver": __version__})
-        for t in ("_src", "_p1", "_p", "_problems", "_bad", "_ops", "_ref", "_changed"):
+        for t in ("_src", "_p1", "_p", "_flagged", "_problems", "_bad", "_ops", "_ref", "_changed"):
             con.execute(f"DROP TABLE IF EXISTS {t}")
         con.execute("COMMIT")
     except BaseException:
