@@ -206,7 +206,17 @@ def build_service_queue(con: duckdb.DuckDBPyConnection, settings: Settings,
     chart = laney_p_chart(df["n_aborted_invalid"].to_numpy(float), df["n_recent"].to_numpy(float))
     lots_by_unit = {k: g for k, g in lots.groupby("instrument_id")} if not lots.empty else {}
     recent_by_unit = {k: g for k, g in recent.groupby("instrument_id")} if not recent.empty else {}
+    if not signals.empty and "chart" in signals:
+        signals = signals[signals["chart"].isin(q.signal_charts)]
     sig_by_unit = {k: g for k, g in signals.groupby("instrument_id")} if not signals.empty else {}
+    lot_effects_all = ({} if lots.empty else
+                       {r.lot_id: float(r.lot_effect_pct) for r in lots.itertuples()
+                        if r.lot_verdict == "off" and pd.notna(r.lot_effect_pct)})
+    if model_ok and table_exists(con, "lot_effects"):
+        off = con.execute("SELECT lot_id, effect_pct FROM lot_effects WHERE verdict = 'off' AND fit_id = "
+                          "(SELECT fit_id FROM model_fits WHERE converged AND window_end <= $t "
+                          "ORDER BY window_end DESC, fit_id DESC LIMIT 1)", {"t": as_of}).fetchall()
+        lot_effects_all.update({lot: float(e) for lot, e in off})
 
     p_other = np.zeros(n)
     p_explained = np.zeros(n)
@@ -270,24 +280,35 @@ def build_service_queue(con: duckdb.DuckDBPyConnection, settings: Settings,
                     causes.append(q.p_out_of_tolerance)
                     reasons.append(f"{len(fails)} check(s) on its last day out of tolerance "
                                    f"(worst {100 * worst['relative_error']:+.1f} %).")
-        # chart signals
+        # chart signals: one cause per unit (signals of one unit are not independent evidence)
         sg = sig_by_unit.get(uid)
         if sg is not None and len(sg):
             ev["signals"] = int(len(sg))
+            n_fleet = int(sg["fleet_significant"].astype(bool).sum())
+            explained_n = 0
             for s in sg.itertuples():
-                p = q.p_signal_fleet if bool(s.fleet_significant) else q.p_signal_local
-                lot_ex = explained_by_lot(1.0 if s.direction == "up" else -1.0)
-                impact = f", {int(s.impact_checks)} checks since onset" if pd.notna(s.impact_checks) else ""
-                onset = f" from {pd.Timestamp(s.onset_at):%Y-%m-%d}" if pd.notna(s.onset_at) else ""
-                text = (f"{s.chart.upper()} signal ({s.rule}, {s.direction}) on {pd.Timestamp(s.measured_at):%Y-%m-%d} "
-                        f"at level {s.level:.3f}{onset}{impact}")
-                if lot_ex:
-                    explained.append(p)
-                    causes.append(p * q.lot_explained_factor)
-                    reasons.append(f"{text}; in the direction of lot {lot_ex[0]} ({lot_ex[1]:+.1f} %).")
-                else:
-                    causes.append(p)
-                    reasons.append(text + ".")
+                eff = lot_effects_all.get(s.lot_id)
+                if eff is not None and np.sign(eff) == (1.0 if s.direction == "up" else -1.0):
+                    explained_n += 1
+            p = q.p_signal_fleet if n_fleet else q.p_signal_local
+            last = sg.iloc[-1]
+            impact = (f", {int(last.impact_checks)} checks in its impact window"
+                      if pd.notna(last.impact_checks) else "")
+            onset = f" from {pd.Timestamp(last.onset_at):%Y-%m-%d}" if pd.notna(last.onset_at) else ""
+            text = (f"{len(sg)} {'/'.join(q.signal_charts).upper()} signal(s) in {q.signal_window_days} days, {n_fleet} significant across the "
+                    f"fleet; latest {last.chart} {last.rule} {last.direction} on "
+                    f"{pd.Timestamp(last.measured_at):%Y-%m-%d} at level {last.level:.3f}{onset}{impact}")
+            ev["signals_fleet_significant"] = n_fleet
+            if explained_n == len(sg):
+                lot_id = sg.iloc[-1].lot_id
+                explained.append(p)
+                causes.append(p * q.lot_explained_factor)
+                reasons.append(f"{text}; all raised on checks with lots the fleet model finds off in the same "
+                               f"direction (e.g. {lot_id}, {lot_effects_all[lot_id]:+.1f} %): the lot, not the unit, "
+                               f"is the likely cause.")
+            else:
+                causes.append(p)
+                reasons.append(text + ".")
         # calibration
         since_cal = _days(as_of, row.last_calibration_at)
         ev["days_since_calibration"] = None if math.isnan(since_cal) else round(since_cal, 1)

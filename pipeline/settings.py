@@ -122,6 +122,9 @@ class QueueSettings:
     reference_level: float = 0.080
     rate_window_days: int = 90          # aborted/invalid rates (Laney p' chart) over this window
     signal_window_days: int = 30        # chart signals this recent count as active
+    # Charts whose signals count as evidence: the persistent-shift detectors; single-point run rules
+    # on a large fleet fire often and stay visible on the unit page and in the digest.
+    signal_charts: tuple[str, ...] = ("cusum", "ewma")
     lot_window_days: int = 60           # lots a unit used this recently can explain its readings
     # Evidence beyond the forecast, each as a probability of breach before the next visit; they are
     # combined with the forecast as independent causes: P = 1 - prod(1 - p_i).
