@@ -19,3 +19,29 @@ def fleet_copy(tmp_dir: Path, name: str = "fleet.duckdb") -> Path:
     target = Path(tmp_dir) / name
     shutil.copy(_CACHE["fleet"], target)
     return target
+
+
+def analysed_demo(demo_db: Path, tmp_dir: Path) -> tuple[Path, dict]:
+    """A copy of the session's demo fleet, charted and modelled, with its truth.json (cached per session)."""
+    import json
+
+    from pipeline.charts.analyse import analyse_fleet
+    from pipeline.db import open_database, publish_snapshot
+    from pipeline.models.fleet_model import fit_fleet_model, store_fleet_model
+    from pipeline.settings import Settings
+    from pipeline.standards import sync_standards_settings
+
+    if "demo" not in _CACHE:
+        base = Path(tmp_dir).parent / "queue-demo-base"
+        base.mkdir(exist_ok=True)
+        path = base / "demo.duckdb"
+        shutil.copy(demo_db, path)
+        con = open_database(path)
+        sync_standards_settings(con, Settings())
+        analyse_fleet(con, Settings())
+        store_fleet_model(con, fit_fleet_model(con, Settings()))
+        publish_snapshot(con, path)
+        con.close()
+        _CACHE["demo"] = path
+    truth = json.loads((Path(demo_db).parent / "fleet" / "truth.json").read_text())
+    return _CACHE["demo"], truth

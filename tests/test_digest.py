@@ -15,7 +15,7 @@ from pipeline.cli import main
 from pipeline.digest import CAUTIONS, parse_week, write_digest
 from pipeline.errors import InputError
 from pipeline.settings import Settings
-from queue_fixture import fleet_copy
+from queue_fixture import analysed_demo, fleet_copy
 
 WEEK = "2026-W27"
 
@@ -100,3 +100,14 @@ def test_digest_command_writes_three_files(fleet, tmp_path):
     assert sorted(p.name for p in tmp_path.iterdir()) == [f"digest-{WEEK}.{x}" for x in ("html", "md", "txt")]
     bad = CliRunner().invoke(main, ["digest", "--db", str(fleet), "--week", "W27", "--out", str(tmp_path)])
     assert bad.exit_code != 0 and "week must look like 2026-W48" in bad.output
+
+
+def test_digest_golden_on_the_demo_fleet(demo_db, tmp_path):
+    path, _ = analysed_demo(demo_db, tmp_path)
+    con = duckdb.connect(str(path), read_only=True)
+    files = write_digest(con, Settings(), "2026-W48", tmp_path / "out")
+    again = write_digest(con, Settings(), "2026-W48", tmp_path / "again")
+    con.close()
+    assert files.html.read_bytes() == again.html.read_bytes()
+    check_golden("demo-digest-2026-W48.md", files.markdown.read_text())
+    check_golden("demo-digest-2026-W48.txt", files.text.read_text())

@@ -18,7 +18,7 @@ from pipeline.cli import main
 from pipeline.cli.queue import escape_cell
 from pipeline.ranking import build_service_queue, shrink, store_service_queue, tolerance_pct
 from pipeline.settings import QueueSettings, Settings
-from queue_fixture import fleet_copy
+from queue_fixture import analysed_demo, fleet_copy
 
 
 @pytest.fixture(scope="module")
@@ -142,23 +142,7 @@ def test_queue_command_json_csv_region_top(tmp_path):
 
 @pytest.fixture(scope="module")
 def demo_analysed(demo_db, tmp_path_factory):
-    """The session's demo fleet, copied, charted and modelled (charts and model helpers' entry points)."""
-    import shutil
-
-    from pipeline.charts.analyse import analyse_fleet
-    from pipeline.db import open_database
-    from pipeline.models.fleet_model import fit_fleet_model, store_fleet_model
-    from pipeline.standards import sync_standards_settings
-
-    path = tmp_path_factory.mktemp("demo_queue") / "demo.duckdb"
-    shutil.copy(demo_db, path)
-    con = open_database(path)
-    sync_standards_settings(con, Settings())
-    analyse_fleet(con, Settings())
-    store_fleet_model(con, fit_fleet_model(con, Settings()))
-    con.close()
-    truth = json.loads((Path(demo_db).parent / "fleet" / "truth.json").read_text())
-    return path, truth
+    return analysed_demo(demo_db, tmp_path_factory.mktemp("demo_queue"))
 
 
 @pytest.mark.xfail(strict=False, reason="measured 2026-12-02 on the 40-unit demo: healthy units carry fleet-"

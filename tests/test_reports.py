@@ -15,7 +15,7 @@ from pipeline.digest import CAUTIONS
 from pipeline.errors import InputError
 from pipeline.reports import write_instrument_record
 from pipeline.settings import Settings
-from queue_fixture import fleet_copy
+from queue_fixture import analysed_demo, fleet_copy
 
 
 @pytest.fixture(scope="module")
@@ -89,3 +89,13 @@ def test_record_command(fleet, tmp_path):
                                        "--to", "2026-06-07", "--out", str(out)])
     assert result.exit_code == 0, result.output
     assert out.exists() and "checks" in result.output
+
+
+def test_record_golden_on_the_demo_fleet(demo_db, tmp_path):
+    path, truth = analysed_demo(demo_db, tmp_path)
+    unit = next(f["instrument_id"] for f in truth["faults"] if f["kind"] == "step")
+    con = duckdb.connect(str(path), read_only=True)
+    rec = write_instrument_record(con, Settings(), unit, "2026-08-01", "2026-09-30", tmp_path / "demo.html")
+    con.close()
+    assert rec.n_checks > 0 and rec.uncertainty_available
+    check_golden(f"demo-record-{unit}-2026-08-01-2026-09-30.html", rec.path.read_text())
