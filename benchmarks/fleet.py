@@ -33,7 +33,7 @@ def benchmark_database() -> Path:
     from pipeline.settings import Settings
 
     os.environ.setdefault("BREATHFLEET_OPERATOR_KEY", "benchmark-key")
-    tmp = db.with_name(db.name + ".building")
+    tmp = db.with_name(f"{db.name}.{os.getpid()}.building")
     for p in (tmp, tmp.with_name(tmp.name + ".wal")):
         p.unlink(missing_ok=True)
     run_demo_job(fleet_dir(), tmp, Settings())
