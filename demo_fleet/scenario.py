@@ -261,7 +261,7 @@ def build_scenario(instruments: int, months: int, seed: int, end: date) -> Scena
     lot_rows, lot_true = [], []
     lot_table = np.empty((2, 3, n_q, 2), dtype=np.int64)
     starts = month_starts(end, months)
-    bad = {(0, 1, max(0, n_q - 2), 0): 0.035, (1, 1, n_q - 1, 1): -0.03}     # wet: past quarter; dry: in use at the end
+    bad = {(0, 1, max(0, n_q - 2), 0): 0.035, (1, 1, max(0, n_q - 2), 1): -0.03}
     for k in range(2):
         for li, level in enumerate(LEVELS):
             for q in range(n_q):
