@@ -40,7 +40,7 @@ def state_by_region(counts: pd.DataFrame) -> alt.Chart:
     """Stacked bars: units per region, split by state (columns region, state, units)."""
     return alt.Chart(counts).mark_bar().encode(
         y=alt.Y("region:N", title="region", sort="-x"),
-        x=alt.X("units:Q", title="units", stack="zero"),
+        x=alt.X("units:Q", title="units", stack="zero", axis=alt.Axis(tickMinStep=1, format="d")),
         color=alt.Color("state:N", scale=_scale(STATE_COLOURS), title="state",
                         legend=alt.Legend(orient="top")),
         order=alt.Order("state_order:Q"),
