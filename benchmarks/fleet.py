@@ -36,6 +36,8 @@ def benchmark_database() -> Path:
     tmp = db.with_name(f"{db.name}.{os.getpid()}.building")
     for p in (tmp, tmp.with_name(tmp.name + ".wal")):
         p.unlink(missing_ok=True)
+    from pipeline.db import snapshot_path
     run_demo_job(fleet_dir(), tmp, Settings())
     os.replace(tmp, db)
+    os.replace(snapshot_path(tmp), snapshot_path(db))
     return db
