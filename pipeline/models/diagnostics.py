@@ -43,7 +43,7 @@ def residual_diagnostics(z: np.ndarray, days: np.ndarray) -> tuple[Diagnostic, .
         Diagnostic("residual_excess_kurtosis", kurt, abs(kurt) < 1.0,
                    f"excess kurtosis {kurt:.3f} (limit +/-1); heavy tails suggest outlying checks"),
         Diagnostic("residual_jarque_bera", float(jb.statistic), shape_ok,
-                   f"Jarque-Bera {jb.statistic:.1f} on {len(z)} sampled checks, p = {jb.pvalue:.3g}; "
+                   f"Jarque-Bera {jb.statistic:.4g} on {len(z)} sampled checks, p = {jb.pvalue:.3g}; "
                    "judged by the size of skewness and kurtosis"),
         Diagnostic("residual_sd", float(np.std(z)), abs(float(np.std(z)) - 1.0) < 0.2,
                    f"SD of standardised residuals {np.std(z):.3f} (expected about 1)"),
