@@ -9,18 +9,18 @@ import click
 from pipeline.charts.analyse import analyse_fleet
 from pipeline.db import open_database, publish_snapshot
 from pipeline.errors import InputError
-from pipeline.settings import load_settings
 
 
-@click.command("analyse", epilog="Example: breathfleet analyse --db fleet.duckdb")
+@click.command("analyse", epilog="Example: breathfleet --settings program.toml analyse --db fleet.duckdb")
 @click.option("--db", "db_path", required=True, type=click.Path(dir_okay=False), help="Database file.")
-@click.option("--settings", "settings_path", type=click.Path(dir_okay=False, exists=True), default=None,
-              help="Settings TOML file.")
-def command(db_path: str, settings_path: str | None) -> None:
-    """Chart all units (individuals, moving range, run rules, CUSUM, EWMA); only new checks are charted."""
+@click.pass_obj
+def command(settings, db_path: str) -> None:
+    """Chart all units (individuals, moving range, run rules, CUSUM, EWMA); only new checks are charted.
+
+    Settings come from the group option: `breathfleet --settings S.toml analyse ...`.
+    """
     if not Path(db_path).exists():
         raise InputError("database file does not exist; ingest data first", file=db_path)
-    settings = load_settings(settings_path)
     con = open_database(db_path)
     try:
         try:
