@@ -17,12 +17,13 @@ from pipeline.charts.arl import (
     cusum_two_dimensional_arl,
     ewma_arl,
     ewma_drift_arl,
-    ewma_limit,
     ewma_survival,
     shewhart_arl,
     shewhart_drift_arl,
     siegmund_arl,
 )
+
+from helpers.run_length import simulate_cusum, simulate_ewma
 
 REFERENCE = Path(__file__).parent / "reference" / "arl"
 
@@ -36,42 +37,6 @@ def _printed(text: str, rel: float) -> dict[str, float]:
     """pytest.approx arguments for a printed value: `rel`, or half a unit of its last digit if larger."""
     decimals = len(text.split(".")[1]) if "." in text else 0
     return {"rel": rel, "abs": 0.5 * 10.0**-decimals}
-
-
-def simulate_cusum(k, h, n, rng, *, shift=0.0, drift=0.0, headstart=0.0, max_steps=50_000):
-    """Run lengths of n two-sided CUSUMs, all charts advanced together (vectorised over charts)."""
-    rl = np.zeros(n, dtype=np.int64)
-    idx = np.arange(n)
-    sp = np.full(n, float(headstart))
-    sm = sp.copy()
-    for t in range(1, max_steps + 1):
-        x = rng.standard_normal(idx.size) + shift + drift * t
-        sp = np.maximum(0.0, sp + x - k)
-        sm = np.maximum(0.0, sm - x - k)
-        signal = (sp > h) | (sm > h)
-        rl[idx[signal]] = t
-        keep = ~signal
-        idx, sp, sm = idx[keep], sp[keep], sm[keep]
-        if idx.size == 0:
-            break
-    return rl
-
-
-def simulate_ewma(lam, L, n, rng, *, shift=0.0, drift=0.0, max_steps=50_000):
-    """Run lengths of n two-sided EWMA charts with fixed limits, vectorised over charts."""
-    limit = ewma_limit(lam, L)
-    rl = np.zeros(n, dtype=np.int64)
-    idx = np.arange(n)
-    z = np.zeros(n)
-    for t in range(1, max_steps + 1):
-        z = lam * (rng.standard_normal(idx.size) + shift + drift * t) + (1.0 - lam) * z
-        signal = np.abs(z) > limit
-        rl[idx[signal]] = t
-        keep = ~signal
-        idx, z = idx[keep], z[keep]
-        if idx.size == 0:
-            break
-    return rl
 
 
 # ---------------------------------------------------------------- Shewhart

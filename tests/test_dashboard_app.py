@@ -17,7 +17,7 @@ from streamlit.testing.v1 import AppTest
 
 from dashboard import figures
 from pipeline.cli.dashboard import dashboard_environment, streamlit_command
-from tests.dashboard_fixture import build_empty_db, build_fleet_db
+from dashboard_fixture import build_empty_db, build_fleet_db
 
 APP = str(Path(__file__).resolve().parent.parent / "dashboard" / "app.py")
 PAGES = ["fleet", "queue", "unit", "comparison", "lots", "data_quality", "digest"]

@@ -12,7 +12,7 @@ from click.testing import CliRunner
 from pipeline.charts.arl import cusum_arl, cusum_drift_arl, ewma_arl, ewma_drift_arl
 from pipeline.charts.design import design_cusum, design_ewma, evaluate_cusum, ewma_L_for_arl0
 from pipeline.cli import main
-from tests.test_arl import simulate_cusum, simulate_ewma
+from helpers.run_length import simulate_cusum, simulate_ewma
 
 
 def test_design_cusum_defaults():

@@ -14,7 +14,7 @@ from pipeline.charts.fleet_alarms import (
     ewma_signal_p_values,
     expected_false_alarms,
 )
-from tests.test_arl import simulate_cusum, simulate_ewma
+from helpers.run_length import simulate_cusum, simulate_ewma
 
 # Benjamini & Hochberg (1995), J. R. Statist. Soc. B 57:289-300, section 4 example: 15 p-values (from memory)
 BH_EXAMPLE = [0.0001, 0.0004, 0.0019, 0.0095, 0.0201, 0.0278, 0.0298, 0.0344, 0.0459,

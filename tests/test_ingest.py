@@ -24,7 +24,7 @@ from pipeline.sources.ingest import ingest_file, ingest_paths
 from pipeline.sources.profiles import load_profile
 from pipeline.sources.pseudonymise import pseudonymise
 from pipeline.units import MG_PER_L_PER_G_PER_210L
-from tests.ingest_fixture import HEADER, good_row, write_reference
+from ingest_fixture import HEADER, good_row, write_reference
 
 ROOT = Path(__file__).resolve().parent.parent
 KEY = b"test-key"

@@ -14,7 +14,7 @@ from pathlib import Path
 
 import pytest
 
-from tests.dashboard_fixture import build_fleet_db
+from dashboard_fixture import build_fleet_db
 
 pytestmark = pytest.mark.browser
 CHROMIUM = "/usr/bin/chromium"
