@@ -29,7 +29,7 @@ _MIGRATION_NAME = re.compile(r"^(\d{3})_([a-z0-9_]+)\.sql$")
 
 
 def sql_text(name: str) -> str:
-    """Text of a named SQL file, e.g. 'views/check_results' or 'queries/fleet_summary'."""
+    """Text of a named SQL file, e.g. 'views/check_results_live' or 'queries/fleet_summary'."""
     path = SQL_DIR / f"{name}.sql"
     try:
         return path.read_text(encoding="utf-8")

@@ -14,6 +14,7 @@ import duckdb
 import numpy as np
 import pandas as pd
 
+from pipeline.check_results import refresh_check_results
 from pipeline.db import migrate, publish_snapshot
 
 CONTRACT_TABLES = {
@@ -140,6 +141,7 @@ def build_fleet_db(path: Path, n_units: int = 24, days: int = 180, seed: int = 7
                                "message": "not a number", "raw_line": "TX1000,abc"})
     _insert(con, "quarantine", quarantine)
 
+    refresh_check_results(con)
     _fill_charts(con, checks, units)
     _fill_model(con, checks, units, lots)
     _fill_queue(con, units)

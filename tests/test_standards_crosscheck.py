@@ -6,6 +6,7 @@ import numpy as np
 import pytest
 from click.testing import CliRunner
 
+from pipeline.check_results import refresh_check_results
 from pipeline.cli import main
 from pipeline.settings import Settings, load_settings
 from pipeline.standards import sync_standards_settings
@@ -69,6 +70,7 @@ def test_view_agrees_with_python_on_random_checks(fresh_db, settings):
             expected = expected_dry_gas(level, pressure if pressure is not None else standard_atmosphere_pressure(2100.0))
         rule = select_rule(std.tolerance_rules, check_type, level)
         want[check_id] = (expected, tolerance_half_width(rule, expected), verdict(rule, measured, expected))
+    refresh_check_results(con)
     rows = con.execute("SELECT check_id, expected, tolerance, verdict FROM check_results ORDER BY check_id").fetchall()
     assert len(rows) == 300
     assert {r[3] for r in rows} == {"pass", "fail"}
@@ -86,6 +88,7 @@ def test_window_from_settings_reaches_the_view(fresh_db, settings):
     fresh_db.execute("INSERT INTO checks VALUES (1, 'X', TIMESTAMP '2026-01-01', 'W', 'daily', 0.08, 0.08, 'g/210L', "
                      "34.25, NULL, NULL, NULL, 'pass', 1, 1)")
     flag = "SELECT temp_out_of_window FROM check_results"
+    refresh_check_results(fresh_db)
     assert fresh_db.execute(flag).fetchone()[0] is True
     sync_standards_settings(fresh_db, settings)
     assert fresh_db.execute(flag).fetchone()[0] is False

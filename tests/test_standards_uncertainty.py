@@ -9,6 +9,7 @@ import duckdb
 import pytest
 from click.testing import CliRunner
 
+from pipeline.check_results import refresh_check_results
 from pipeline.cli import main
 from pipeline.db import migrate
 from pipeline.errors import InputError
@@ -41,6 +42,7 @@ def fill(con):
                     "NULL, NULL, $outcome, 1, $id)",
                     {"id": check_id, "inst": inst, "at": at, "lot": lot, "target": target, "m": measured,
                      "temp": temp, "p": pressure, "outcome": outcome})
+    refresh_check_results(con)
 
 
 @pytest.fixture

@@ -1,4 +1,4 @@
-"""The view check_results on a small hand-made dataset in a fresh database."""
+"""The table check_results (filled from the view check_results_live) on a small hand-made dataset."""
 
 import dataclasses
 import math
@@ -6,6 +6,7 @@ from datetime import datetime, timedelta
 
 import pytest
 
+from pipeline.check_results import refresh_check_results
 from pipeline.errors import InputError
 from pipeline.settings import Settings, StandardsSettings, ToleranceRule
 from pipeline.standards import sync_standards_settings
@@ -47,9 +48,11 @@ def insert_check(con, check_id, instrument_id, lot_id, measured, *, target=None,
         {"id": check_id, "inst": instrument_id, "at": at or T0 + timedelta(hours=check_id), "lot": lot_id,
          "type": check_type, "target": 0.080 if target is None else target, "measured": measured,
          "temp": temp, "pressure": pressure, "site": site_id, "outcome": outcome})
+    refresh_check_results(con)
 
 
 def row(con, check_id):
+    refresh_check_results(con)
     df = con.execute("SELECT * FROM check_results WHERE check_id = $id", {"id": check_id}).df()
     assert len(df) == 1
     return df.iloc[0]
@@ -194,6 +197,7 @@ def test_baseline_and_solution_context(db):
                {"a": T0 + timedelta(hours=2, minutes=30), "b": T0 + timedelta(hours=3, minutes=30)})
     for i in range(1, 6):
         insert_check(db, i, "FC-1", "WB-80", 0.080, temp=34.0)
+    refresh_check_results(db)
     df = db.execute("SELECT check_id, baseline_period, checks_since_solution_change FROM check_results "
                     "ORDER BY check_id").fetchall()
     assert df == [(1, 0, 0), (2, 0, 1), (3, 1, 2), (4, 1, 0), (5, 1, 1)]

@@ -42,7 +42,7 @@ def command(ctx: click.Context, db_path: str, port: int) -> None:
     if not db.exists() and not db.with_name(db.name + ".snapshot").exists():
         raise InputError("database file does not exist; ingest data first (breathfleet ingest --db FILE ...)",
                          file=str(db))
-    settings_path = ctx.parent.params.get("settings_path") if ctx.parent else None
+    settings_path = ctx.find_root().params.get("settings_path")
     click.echo(f"breathfleet dashboard on http://localhost:{port} (reading {db}); press Ctrl+C to stop.")
     try:
         result = subprocess.run(streamlit_command(port), env=dashboard_environment(db, settings_path), check=False)

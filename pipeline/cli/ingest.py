@@ -10,6 +10,7 @@ from pipeline.db import open_database, publish_snapshot
 from pipeline.sources.ingest import expand_paths, ingest_file
 from pipeline.sources.profiles import TABLES, load_profile
 from pipeline.sources.pseudonymise import operator_key
+from pipeline.standards import sync_standards_settings
 
 
 @click.command("ingest", epilog="Example: breathfleet ingest --db fleet.duckdb --profile tollmere.toml exports/*.csv")
@@ -37,6 +38,7 @@ def command(settings, db_path, profile_path, table, quiet, as_json, paths):
                     results.append(ingest_file(con, path, settings, profile, table, key=key))
                 finally:
                     if results:
+                        sync_standards_settings(con, settings)   # brings check_results up to date
                         publish_snapshot(con, db_path)
     finally:
         con.close()

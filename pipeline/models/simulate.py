@@ -8,12 +8,15 @@ relative_error = measured / target - 1 exactly.
 
 from __future__ import annotations
 
+
 import datetime as dt
 from dataclasses import dataclass
 
 import duckdb
 import numpy as np
 import pandas as pd
+
+from pipeline.check_results import refresh_check_results
 
 
 @dataclass(frozen=True)
@@ -115,6 +118,7 @@ def simulate_fleet(con: duckdb.DuckDBPyConnection, *, n_units: int = 60, checks_
     con.register("_sim_events", ev)
     con.execute("INSERT INTO service_events (instrument_id, event_at, event_type) SELECT * FROM _sim_events")
     con.unregister("_sim_events")
+    refresh_check_results(con)
     truth = pd.DataFrame({"instrument_id": np.repeat(ids, 2), "baseline_period": np.tile([0, 1], n_units),
                           "intercept": b0.ravel(), "drift": mean_drift + b1.ravel()})
     return SimulatedFleet(lot_effects=lot_effects, unit_bias=truth, depletion_per_100=depletion_per_100,

@@ -1,4 +1,4 @@
-"""Expected values of reference standards: the formulas the view `check_results` applies.
+"""Expected values of reference standards: the formulas the view `check_results_live` applies.
 
 Kept in Python for tests, for the uncertainty budget's sensitivity coefficients and for
 one-off calculations; the view computes the same thing in SQL over all checks.

@@ -46,7 +46,8 @@ def sync_standards_settings(con: duckdb.DuckDBPyConnection, settings: Settings |
                             own_transaction: bool = True) -> None:
     """Write the standards settings into standards_parameters, standards_compensating and tolerance_rules.
 
-    Idempotent; runs in one transaction. Call it before reading `check_results` in any writer.
+    Idempotent; runs in one transaction. Call it before reading `check_results` in any writer:
+    it also brings the table check_results up to date (pipeline.check_results).
 
     Parameters:
         con: a writable connection with the schema migrated.
@@ -60,12 +61,16 @@ def sync_standards_settings(con: duckdb.DuckDBPyConnection, settings: Settings |
     digest = settings.digest() if isinstance(settings, Settings) else None
     std = settings.standards if isinstance(settings, Settings) else settings
     validate_tolerance_rules(std.tolerance_rules)
+    from pipeline.check_results import refresh_check_results
+
     if not own_transaction:  # the caller's transaction holds the writes; it commits or rolls back
         _write(con, std, digest)
+        refresh_check_results(con, in_transaction=True)
         return
     con.execute("BEGIN TRANSACTION")
     try:
         _write(con, std, digest)
+        refresh_check_results(con, in_transaction=True)
         con.execute("COMMIT")
     except BaseException:
         con.execute("ROLLBACK")

@@ -1,4 +1,4 @@
-"""Acceptance tolerance: the rule set of settings, applied as the view `check_results` does."""
+"""Acceptance tolerance: the rule set of settings, applied as the view `check_results_live` does."""
 
 from __future__ import annotations
 

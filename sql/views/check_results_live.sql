@@ -1,8 +1,11 @@
--- name: check_results
+-- name: check_results_live
 -- One row: one stored check with everything later features read: context (technology,
--- region, standard kind, baseline period, solution age), the expected value with the
+-- region, standard kind, baseline period, solution change), the expected value with the
 -- correction that made it, the error, breathfleet's own verdict and data-quality flags.
--- Every chart, model and report reads this view.
+-- Computed per row from checks and the reference tables. Features read the table
+-- check_results (sql/schema/008), which pipeline/check_results.py fills from this view and
+-- completes with checks_since_solution_change; filter on instrument_id or check_id here and
+-- DuckDB computes only those rows.
 --
 -- Expected value (pipeline/standards/expected_values.py holds the same formulas in Python):
 --   expected_raw = the lot's certified value (the check's own target when the lot is unknown)
@@ -17,7 +20,7 @@
 -- Tolerance: the most specific rule wins (check type and level, check type, level, default);
 -- |measured - expected| <= max(absolute, relative * expected), with 1e-9 slack for binary floats.
 -- Flags are never NULL. Date comparisons use the UTC date of measured_at.
-CREATE OR REPLACE VIEW check_results AS
+CREATE OR REPLACE VIEW check_results_live AS
 WITH solution_changes AS (
     SELECT instrument_id, event_at AS solution_changed_at
     FROM service_events WHERE event_type = 'solution_change'
@@ -112,10 +115,6 @@ SELECT
     v.standard_kind,
     coalesce(v.baseline_period, 0) AS baseline_period, v.baseline_started_at,
     v.solution_changed_at,
-    CASE WHEN v.standard_kind = 'wet_bath' THEN
-        count(*) OVER (PARTITION BY v.instrument_id, v.solution_changed_at
-                       ORDER BY v.measured_at, v.check_id ROWS UNBOUNDED PRECEDING) - 1
-    END AS checks_since_solution_change,
     v.expected_raw,
     v.expected,
     v.correction_factor,
