@@ -64,6 +64,54 @@ def linear_prediction_interval(x, y, x0: float, confidence: float = 0.95) -> Pre
 
 
 @dataclass(frozen=True)
+class LineForecast:
+    """A line through recent points, its slope shrunk toward a prior, predicted at x0."""
+
+    x0: float
+    estimate: float            # predicted mean at x0
+    var_mean: float            # variance of the predicted mean (parameter uncertainty only)
+    sigma2: float              # residual variance about the line
+    slope: float               # slope after shrinkage
+    slope_ols: float
+    level_now: float           # the line at the last x (the current level)
+    shrinkage: float           # B = prior var / (prior var + var(slope_ols)); 1 = no shrinkage
+    n: int
+
+
+def shrunk_line_forecast(x, y, x0: float, slope_prior_mean: float = 0.0,
+                         slope_prior_var: float = math.inf) -> LineForecast:
+    """Least-squares line through (x, y) with its slope shrunk toward a prior, predicted at x0.
+
+    The intercept is the mean at x_bar (independent of the slope in least squares), so the
+    predicted mean is y_bar + b* (x0 - x_bar) with variance sigma2 / n + (x0 - x_bar)^2 var(b*),
+    where b* = m + B (b - m), B = prior var / (prior var + sigma2 / Sxx) and var(b*) = B sigma2 / Sxx
+    (normal-normal posterior of the slope). With an infinite prior variance B = 1 and
+    var_mean + sigma2 is the Montgomery & Runger 11-6 prediction variance.
+    Source: Montgomery & Runger, Applied Statistics and Probability for Engineers, section 11-6;
+    Efron & Morris (1975), JASA 70:311-319 (the shrinkage factor).
+    """
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    n = len(x)
+    if n < 3:
+        raise ValueError("a line forecast needs at least 3 points")
+    xbar, ybar = float(x.mean()), float(y.mean())
+    sxx = float(((x - xbar) ** 2).sum())
+    if sxx <= 0:
+        raise ValueError("all x are equal; the slope is not defined")
+    b = float(((x - xbar) * (y - ybar)).sum() / sxx)
+    sigma2 = float(((y - ybar - b * (x - xbar)) ** 2).sum() / (n - 2))
+    var_b = sigma2 / sxx
+    shrink = 1.0 if not math.isfinite(slope_prior_var) else (
+        slope_prior_var / (slope_prior_var + var_b) if slope_prior_var + var_b > 0 else 0.0)
+    b_star = slope_prior_mean + shrink * (b - slope_prior_mean)
+    var_mean = sigma2 / n + (x0 - xbar) ** 2 * shrink * var_b
+    return LineForecast(x0=float(x0), estimate=ybar + b_star * (x0 - xbar), var_mean=var_mean, sigma2=sigma2,
+                        slope=b_star, slope_ols=b, level_now=ybar + b_star * (float(x.max()) - xbar),
+                        shrinkage=shrink, n=n)
+
+
+@dataclass(frozen=True)
 class BiasForecast:
     """Predictive distribution of a unit's bias (percent) over the days ahead, and time to tolerance."""
 

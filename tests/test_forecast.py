@@ -9,7 +9,7 @@ import pytest
 import statsmodels.api as sm
 from scipy import stats
 
-from pipeline.forecast import breach_probability, forecast_bias, linear_prediction_interval
+from pipeline.forecast import breach_probability, forecast_bias, linear_prediction_interval, shrunk_line_forecast
 
 # Montgomery & Runger, "Applied Statistics and Probability for Engineers", Table 11-1: oxygen purity (y, %)
 # against hydrocarbon level (x, %), 20 observations (data recalled from memory; the book's fitted
@@ -68,3 +68,27 @@ def test_forecast_without_drift_never_reaches_tolerance_on_the_mean():
     fc = forecast_bias(0.0, 0.0, 0.01, 0.0001, 0.0, 0.25, 5.0, 30)
     assert math.isinf(fc.days_to_tolerance)
     assert fc.p_breach < 1e-6
+
+
+def test_unshrunk_line_forecast_is_the_textbook_prediction_variance():
+    fc = shrunk_line_forecast(HYDROCARBON, PURITY, x0=1.00)
+    pi = linear_prediction_interval(HYDROCARBON, PURITY, x0=1.00)
+    # Montgomery & Runger, section 11-6: Var(Y0 - Y0_hat) = sigma2 (1 + 1/n + (x0 - xbar)^2 / Sxx);
+    # Example 11-1 gives the fitted line 74.283 + 14.947 x
+    assert fc.estimate == pytest.approx(pi.estimate, rel=1e-12)
+    assert fc.var_mean + fc.sigma2 == pytest.approx(pi.standard_error ** 2, rel=1e-12)
+    assert fc.slope == pytest.approx(14.947, abs=5e-4) and fc.shrinkage == 1.0
+
+
+def test_shrunk_slope_moves_toward_the_prior_by_the_efron_morris_factor():
+    x = np.asarray(HYDROCARBON)
+    sxx = float(((x - x.mean()) ** 2).sum())
+    free = shrunk_line_forecast(HYDROCARBON, PURITY, x0=1.5)
+    prior_var = free.sigma2 / sxx          # prior as uncertain as the estimate: B = 1/2
+    fc = shrunk_line_forecast(HYDROCARBON, PURITY, x0=1.5, slope_prior_mean=10.0, slope_prior_var=prior_var)
+    # Efron & Morris (1975), JASA 70:311-319: posterior mean m + B (b - m), B = A / (A + V), variance B V
+    assert fc.shrinkage == pytest.approx(0.5, rel=1e-12)
+    assert fc.slope == pytest.approx(10.0 + 0.5 * (free.slope - 10.0), rel=1e-12)
+    assert fc.var_mean == pytest.approx(free.sigma2 / len(x) + (1.5 - x.mean()) ** 2 * 0.5 * free.sigma2 / sxx,
+                                        rel=1e-12)
+    assert fc.var_mean < free.var_mean
