@@ -261,7 +261,9 @@ def build_scenario(instruments: int, months: int, seed: int, end: date) -> Scena
     lot_rows, lot_true = [], []
     lot_table = np.empty((2, 3, n_q, 2), dtype=np.int64)
     starts = month_starts(end, months)
-    bad = {(0, 1, max(0, n_q - 2), 0): 0.035, (1, 1, max(0, n_q - 2), 1): -0.03}
+    # wet bath: a past quarter (found in the history); dry gas: the last quarter, still in use at the end,
+    # so the queue has current readings that a bad lot explains
+    bad = {(0, 1, max(0, n_q - 2), 0): 0.035, (1, 1, n_q - 1, 1): -0.03}
     for k in range(2):
         for li, level in enumerate(LEVELS):
             for q in range(n_q):

@@ -1,22 +1,39 @@
 """The service queue: which units to visit first, how sure we are of the order, and why.
 
-Priority is a probability a coordinator can read: the chance that a unit breaches tolerance before
-its next scheduled check or visit (`QueueSettings.horizon_days`). It starts from the unit's
-predictive distribution (pipeline.forecast: bias at the reference time + drift x horizon, with their
-covariance, plus residual and between-lot variance), after empirical Bayes shrinkage of bias and
-drift toward the fleet (James-Stein / Efron & Morris 1975 normal-normal shrinkage, between-unit
-variance by method of moments), so a unit with few checks does not top the list by noise. The other
-evidence (out of tolerance now, chart signals, calibration overdue, silence, aborted/invalid rate on
-a Laney p' chart) enters as independent causes with probabilities from settings:
-P = 1 - prod(1 - p_i). A lot verdict 'off' in the direction of the unit's readings scales the
-evidence it explains by `lot_explained_factor`. Rank intervals come from simulating the shrunk
-estimates (5th-95th percentiles of the simulated ranks).
+Priority is a probability a coordinator can read: the chance that a unit breaches tolerance at its
+next scheduled check or visit (`QueueSettings.horizon_days` ahead), i.e. that a check then reads
+outside tolerance. It comes from the unit's predictive distribution (pipeline.forecast):
+
+- the model forecast: bias at the reference time + drift x days ahead from the latest converged
+  fleet-model fit, after empirical Bayes shrinkage of bias and drift toward the fleet (Efron & Morris
+  1975; DerSimonian & Laird 1986 between-unit variance), so a unit with few checks does not top the
+  list by noise; variance = their covariance propagated + the unit's own repeatability + between-lot
+  variance. The repeatability is the unit's moving-range estimate at the reference level shrunk toward
+  the model's residual variance of its technology (normal / scaled inverse chi-square, Gelman et al.,
+  Bayesian Data Analysis, 3rd ed., 2.6), so a noisy unit breaches more often. Over days without checks
+  the drift is taken as uncertain as the fleet's spread of drifts, so a silent unit's variance grows
+  with the square of the time since its last check.
+- chart signals (CUSUM/EWMA) mean the unit left the model's linear path. Its forecast becomes a mixture:
+  with weight w (`p_signal_fleet` / `p_signal_local`: how often such a signal marks a real change) the
+  Montgomery & Runger 11-6 line through its checks since the change (errors less the model's lot effects
+  and wet-bath depletion; slope shrunk toward its drift before, with the fleet's spread of drifts as
+  prior variance), else the model forecast. When all its signals were raised on checks of lots the
+  model finds off in the same direction, the post-change branch is itself a mixture: with weight
+  `lot_explained_factor` the shift on those checks is the unit's own (off lot's effect left in), else
+  the lot's; the unit gets the `lot_explained` evidence.
+- other evidence (out of tolerance on its last day, calibration overdue, silence while its site reports,
+  aborted/invalid rate above its Laney p' limit) enters as independent causes with the probabilities in
+  settings (noisy-OR): P = 1 - (1 - P_forecast) prod(1 - p_i). An off lot explaining the out-of-tolerance
+  checks scales that cause by `lot_explained_factor`.
+
+Rank intervals come from simulating the estimates (5th-95th percentiles of the simulated ranks).
 """
 
 from __future__ import annotations
 
 import json
 import math
+import re
 from dataclasses import dataclass, field
 from datetime import datetime
 
@@ -25,12 +42,13 @@ import numpy as np
 import pandas as pd
 
 from pipeline import __version__
-from pipeline.attribute_chart import laney_p_chart
+from pipeline.attribute_chart import D2_TWO, laney_p_chart
 from pipeline.db import query_df
-from pipeline.forecast import breach_probability, forecast_bias
+from pipeline.forecast import breach_probability, forecast_bias, shrunk_line_forecast
 from pipeline.settings import QueueSettings, Settings
 
 Z95 = 1.959963984540054
+MR_EFFICIENCY = 0.62  # degrees of freedom of MR-bar / d2 per moving range (Cryer & Ryan 1990; from memory)
 
 
 @dataclass(frozen=True)
@@ -163,6 +181,21 @@ def build_service_queue(con: duckdb.DuckDBPyConnection, settings: Settings,
                if table_exists(con, "chart_signals") else pd.DataFrame(columns=["instrument_id"]))
     if not table_exists(con, "chart_signals"):
         warnings.append("chart signals missing: signal evidence unavailable")
+    series_ok = table_exists(con, "model_fits") and table_exists(con, "lot_effects")
+    series = (query_df(con, "queries/queue_unit_series", as_of=as_of,
+                       days_back=max(q.rate_window_days, q.post_change_max_days))
+              if series_ok else pd.DataFrame(columns=["instrument_id", "measured_at", "level", "y",
+                                                      "lot_effect_pct", "lot_verdict", "mean_lot_effect_pct", "d"]))
+    depletion = _fit_depletion(con, as_of) if series_ok else 0.0
+    # The unit's own deviation as the fleet model sees it: relative error less its lot's effect and
+    # the wet-bath depletion term (the model's unit intercept + drift path + residual).
+    series["y_adj"] = (series["y"].astype(float) - series["lot_effect_pct"].astype(float)
+                       - depletion * series["d"].astype(float))
+    # The same with the effect of lots found 'off' left in (an ordinary lot's effect taken out instead):
+    # the readings as they would be if the off lot's shift were the unit's own.
+    off = (series["lot_verdict"] == "off").to_numpy(dtype=bool)
+    series["y_off_kept"] = series["y_adj"] + np.where(
+        off, series["lot_effect_pct"].astype(float) - series["mean_lot_effect_pct"].astype(float), 0.0)
 
     df = units.merge(est, on="instrument_id", how="left") if not est.empty else units.assign(
         bias_pct=np.nan, bias_ci_low_pct=np.nan, bias_ci_high_pct=np.nan, drift_pct_per_30d=np.nan,
@@ -187,20 +220,40 @@ def build_service_queue(con: duckdb.DuckDBPyConnection, settings: Settings,
     else:
         b_post, vb_post, d_post, vd_post, cov_post = b, se_b ** 2, d, se_d ** 2, cov
         b_mean = d_mean = tau2_b = tau2_d = math.nan
+    # The fleet's drift distribution: the prior of a drift the unit's own data do not pin down
+    # (after a detected change, or over days without checks).
+    _, _, fleet_drift, fleet_drift_var = shrink(d, se_d)
+    fleet_drift_var = fleet_drift_var if math.isfinite(fleet_drift_var) else 0.0
     comp = dict(zip(vc["component"], vc["variance"])) if not vc.empty else {}
     rep = [v for k, v in comp.items() if (str(k).startswith("repeatability") or k == "residual") and pd.notna(v)]
     residual_var = float(np.median(rep)) if rep else 0.0
     lot_v = comp.get("between_lots", comp.get("lot"))
     lot_var = float(lot_v) if lot_v is not None and pd.notna(lot_v) else 0.0
-    extra_var = residual_var + lot_var
-    # Days from the reference time to the next visit: horizon after the data time.
+    # Each unit's repeatability at the reference level: its own moving ranges, shrunk toward the
+    # model's residual variance of its technology (a noisy unit breaches more often).
+    prior_var = np.array([_repeatability_prior(comp, t, q.reference_level, residual_var)
+                          for t in df["technology"]])
+    own_var, own_df = _own_repeatability(series, df["instrument_id"], q.reference_level,
+                                         pd.Timestamp(as_of) - pd.Timedelta(days=q.rate_window_days))
+    resid_var = np.where(own_df > 0, (q.repeatability_prior_df * prior_var + own_df * own_var)
+                         / (q.repeatability_prior_df + own_df), prior_var)
+    extra_var = resid_var + lot_var
+    # Days from the reference time to the next visit: horizon after the data time. Over days with no
+    # checks the unit's drift is only known as well as the fleet's spread of drifts, so a silent
+    # unit's predictive variance grows with the square of the time since its last check.
     ref = pd.to_datetime(df["reference_at"]) if "reference_at" in df else pd.Series(pd.NaT, index=df.index)
     lag = np.array([max(_days(as_of, r), 0.0) if pd.notna(r) else 0.0 for r in ref])
     h = lag + q.horizon_days
     mean_h = b_post + d_post * h / 30
-    var_param = vb_post + (h / 30) ** 2 * vd_post + 2 * (h / 30) * cov_post
+    var_param = (vb_post + (h / 30) ** 2 * vd_post + 2 * (h / 30) * cov_post
+                 + (lag / 30) ** 2 * fleet_drift_var)
     sd_h = np.sqrt(np.maximum(var_param + extra_var, 1e-12))
-    p_forecast = np.nan_to_num(breach_probability(mean_h, sd_h, tol), nan=0.0)
+    p_model = np.nan_to_num(breach_probability(mean_h, sd_h, tol), nan=0.0)
+    p_forecast = p_model.copy()
+    series_by_unit = {k: g for k, g in series.groupby("instrument_id")} if not series.empty else {}
+    # post-change forecasts of units with active signals: (mean, variance of the mean, weight)
+    post_mean, post_var, post_w = np.zeros(n), np.zeros(n), np.zeros(n)
+    post_mean2, post_var2, post_f = np.zeros(n), np.zeros(n), np.zeros(n)   # off lots' effect left in
 
     # --- other evidence ----------------------------------------------------------------------
     chart = laney_p_chart(df["n_aborted_invalid"].to_numpy(float), df["n_recent"].to_numpy(float))
@@ -226,7 +279,7 @@ def build_service_queue(con: duckdb.DuckDBPyConnection, settings: Settings,
         reasons: list[str] = []
         causes: list[float] = []
         explained: list[float] = []
-        ev: dict = {"p_forecast": round(float(p_forecast[i]), 6)}
+        ev: dict = {"p_model": round(float(p_model[i]), 6), "residual_sd_pct": round(math.sqrt(resid_var[i]), 3)}
         # lot verdicts that could explain the readings
         off_lots = []
         lg = lots_by_unit.get(uid)
@@ -243,15 +296,15 @@ def build_service_queue(con: duckdb.DuckDBPyConnection, settings: Settings,
         # forecast
         if np.isfinite(b[i]):
             fc = forecast_bias(float(b_post[i]), float(d_post[i]), float(vb_post[i]), float(vd_post[i]),
-                               float(cov_post[i]), extra_var, tol, float(h[i]))
+                               float(cov_post[i]), float(extra_var[i]), tol, float(h[i]))
             ev.update(bias_pct=round(float(b[i]), 4), bias_shrunk_pct=round(float(b_post[i]), 4),
                       drift_pct_per_30d=round(float(d[i]), 4), drift_shrunk_pct_per_30d=round(float(d_post[i]), 4),
                       days_to_tolerance=fc.days_to_tolerance, days_to_tolerance_low=fc.days_to_tolerance_low,
-                      days_to_tolerance_high=fc.days_to_tolerance_high)
-            if p_forecast[i] >= 0.01:
+                      days_to_tolerance_high=fc.days_to_tolerance_high, forecast_sd_pct=round(float(sd_h[i]), 4))
+            if p_model[i] >= 0.01:
                 reasons.append(f"Forecast bias {mean_h[i]:+.1f} % (sd {sd_h[i]:.1f} %) at the next visit in "
                                f"{q.horizon_days} days against a tolerance of {tol:.2f} %: "
-                               f"{100 * p_forecast[i]:.0f} % chance of breach.")
+                               f"{100 * p_model[i]:.0f} % chance of breach.")
             if math.isfinite(fc.days_to_tolerance_low) and fc.days_to_tolerance_low <= 365:
                 high = ("never within 10 years" if math.isinf(fc.days_to_tolerance_high)
                         else f"{fc.days_to_tolerance_high:.0f}")
@@ -262,6 +315,10 @@ def build_service_queue(con: duckdb.DuckDBPyConnection, settings: Settings,
             ev["bias_pct"] = None
             if model_ok:
                 reasons.append("No model estimate for this unit; its forecast is the fleet average.")
+        if own_df[i] > 0 and resid_var[i] > q.repeatability_flag_ratio * prior_var[i]:
+            reasons.append(f"Repeatability sd {math.sqrt(resid_var[i]):.1f} % at {q.reference_level:.3f} over "
+                           f"{q.rate_window_days} days, against {math.sqrt(prior_var[i]):.1f} % for its "
+                           f"technology: single checks stray further.")
         # out of tolerance now
         rg = recent_by_unit.get(uid)
         if rg is not None:
@@ -280,7 +337,9 @@ def build_service_queue(con: duckdb.DuckDBPyConnection, settings: Settings,
                     causes.append(q.p_out_of_tolerance)
                     reasons.append(f"{len(fails)} check(s) on its last day out of tolerance "
                                    f"(worst {100 * worst['relative_error']:+.1f} %).")
-        # chart signals: one cause per unit (signals of one unit are not independent evidence)
+        # chart signals: a persistent-shift signal says the unit's level left the path the fleet model
+        # fitted. The forecast becomes a mixture: with weight w (how often such a signal marks a real
+        # change) the post-change line through the checks since the onset, else the model's forecast.
         sg = sig_by_unit.get(uid)
         if sg is not None and len(sg):
             ev["signals"] = int(len(sg))
@@ -290,7 +349,7 @@ def build_service_queue(con: duckdb.DuckDBPyConnection, settings: Settings,
                 eff = lot_effects_all.get(s.lot_id)
                 if eff is not None and np.sign(eff) == (1.0 if s.direction == "up" else -1.0):
                     explained_n += 1
-            p = q.p_signal_fleet if n_fleet else q.p_signal_local
+            w = q.p_signal_fleet if n_fleet else q.p_signal_local
             last = sg.iloc[-1]
             impact = (f", {int(last.impact_checks)} checks in its impact window"
                       if pd.notna(last.impact_checks) else "")
@@ -299,16 +358,47 @@ def build_service_queue(con: duckdb.DuckDBPyConnection, settings: Settings,
                     f"fleet; latest {last.chart} {last.rule} {last.direction} on "
                     f"{pd.Timestamp(last.measured_at):%Y-%m-%d} at level {last.level:.3f}{onset}{impact}")
             ev["signals_fleet_significant"] = n_fleet
-            if explained_n == len(sg):
+            lot_explains = explained_n == len(sg)
+            if lot_explains:
+                explained.append(w)
+            change_from = pd.to_datetime(sg["onset_at"]).fillna(pd.to_datetime(sg["measured_at"])).min()
+            # prior of the post-change drift: the unit's drift before (the fleet's mean without a model
+            # estimate), as uncertain as drifts differ between units
+            prior = (float(d_post[i]) if np.isfinite(d_post[i]) else fleet_drift,
+                     fleet_drift_var if q.shrink_to_fleet and fleet_drift_var > 0 else math.inf)
+            pc = _post_change(series_by_unit.get(uid), change_from, as_of, q, *prior)
+            sentence = text
+            if pc is not None:
+                fc, start = pc
+                p_post = float(breach_probability(fc.estimate, math.sqrt(fc.var_mean + extra_var[i]), tol))
+                post_mean[i], post_var[i], post_w[i] = fc.estimate, fc.var_mean, w
+                if lot_explains:
+                    # Explained by an off lot: with weight lot_explained_factor the shift the chart saw on
+                    # that lot's checks is the unit's own after all (the off lot's effect left in).
+                    f = q.lot_explained_factor
+                    kept = _post_change(series_by_unit.get(uid), change_from, as_of, q, *prior, column="y_off_kept")
+                    p_kept = (float(breach_probability(kept[0].estimate, math.sqrt(kept[0].var_mean + extra_var[i]),
+                                                       tol)) if kept is not None else p_post)
+                    ev["p_post_change_lot_kept"] = round(p_kept, 6)
+                    p_post = f * p_kept + (1 - f) * p_post
+                    if kept is not None:
+                        post_mean2[i], post_var2[i], post_f[i] = kept[0].estimate, kept[0].var_mean, f
+                p_forecast[i] = (1 - w) * p_model[i] + w * p_post
+                ev.update(p_post_change=round(p_post, 6), signal_weight=round(w, 4),
+                          post_change_from=f"{pd.Timestamp(start):%Y-%m-%d}",
+                          post_change_level_pct=round(fc.level_now, 4),
+                          post_change_drift_pct_per_30d=round(fc.slope, 4), post_change_checks=fc.n)
+                sentence += (f"; since {pd.Timestamp(start):%Y-%m-%d} its level (lot-adjusted) is "
+                             f"{fc.level_now:+.1f} % and moving {fc.slope:+.2f} % per 30 days, so the next visit "
+                             f"has a {100 * p_post:.0f} % chance of breach if the change is real "
+                             f"(weight {100 * w:.0f} %)")
+            if lot_explains:
                 lot_id = sg.iloc[-1].lot_id
-                explained.append(p)
-                causes.append(p * q.lot_explained_factor)
-                reasons.append(f"{text}; all raised on checks with lots the fleet model finds off in the same "
+                reasons.append(f"{sentence}; all raised on checks with lots the fleet model finds off in the same "
                                f"direction (e.g. {lot_id}, {lot_effects_all[lot_id]:+.1f} %): the lot, not the unit, "
                                f"is the likely cause.")
             else:
-                causes.append(p)
-                reasons.append(text + ".")
+                reasons.append(sentence + ".")
         # calibration
         since_cal = _days(as_of, row.last_calibration_at)
         ev["days_since_calibration"] = None if math.isnan(since_cal) else round(since_cal, 1)
@@ -334,6 +424,7 @@ def build_service_queue(con: duckdb.DuckDBPyConnection, settings: Settings,
                            f"{100 * chart.p_bar:.1f} %, Laney p' limit {100 * chart.ucl[i]:.1f} %).")
         if off_lots:
             ev["off_lots"] = [lot for lot, _ in off_lots]
+        ev["p_forecast"] = round(float(p_forecast[i]), 6)
         p_other[i] = 1 - np.prod([1 - c for c in causes]) if causes else 0.0
         p_explained[i] = 1 - np.prod([1 - c for c in explained]) if explained else 0.0
         ev["lot_explained"] = bool(explained)
@@ -356,7 +447,13 @@ def build_service_queue(con: duckdb.DuckDBPyConnection, settings: Settings,
     rho = np.clip(np.where(sb * sd_ > 0, cov_post / np.where(sb * sd_ > 0, sb * sd_, 1), 0), -0.99, 0.99)
     bb = np.nan_to_num(b_post) + sb * zb
     dd = np.nan_to_num(d_post) + sd_ * (rho * zb + np.sqrt(1 - rho ** 2) * zd)
-    ps = breach_probability(bb + dd * h / 30, np.sqrt(max(extra_var, 1e-12)) * np.ones(n), tol)
+    ps = breach_probability(bb + dd * h / 30, np.sqrt(np.maximum(extra_var + (lag / 30) ** 2 * fleet_drift_var,
+                                                               1e-12)), tol)
+    zp = rng.standard_normal((S, n))
+    ps_post = breach_probability(post_mean + np.sqrt(post_var) * zp, np.sqrt(np.maximum(extra_var, 1e-12)), tol)
+    ps_kept = breach_probability(post_mean2 + np.sqrt(post_var2) * zp, np.sqrt(np.maximum(extra_var, 1e-12)), tol)
+    ps_post = post_f * ps_kept + (1 - post_f) * ps_post
+    ps = (1 - post_w) * ps + post_w * ps_post
     ps = 1 - (1 - ps) * (1 - p_other)
     sim_rank = (-ps).argsort(axis=1, kind="stable").argsort(axis=1, kind="stable") + 1
     rank_low = np.percentile(sim_rank, 5, axis=0, method="lower").astype(int)
@@ -374,6 +471,75 @@ def build_service_queue(con: duckdb.DuckDBPyConnection, settings: Settings,
     warnings.extend(chart.warnings)
     return ServiceQueue(as_of, tuple(entries), tol, q.horizon_days, model_ok, settings.digest(), __version__,
                         tuple(warnings))
+
+
+def _fit_depletion(con: duckdb.DuckDBPyConnection, as_of: datetime) -> float:
+    """The wet-bath depletion slope (percent per 100 checks) of the latest converged fit, 0 without one."""
+    fit = query_df(con, "queries/queue_fit", as_of=as_of)
+    if fit.empty or fit["parameters"].iloc[0] is None:
+        return 0.0
+    value = json.loads(fit["parameters"].iloc[0]).get("fixed_slope_d_pct_per_100_checks")
+    return float(value) if value is not None and math.isfinite(float(value)) else 0.0
+
+
+def _repeatability_prior(comp: dict, technology, level: float, default: float) -> float:
+    """The fleet model's residual variance for a technology at a level (percent^2), else `default`."""
+    for name, value in comp.items():
+        m = re.fullmatch(r"repeatability (.+) @ ([0-9.]+)", str(name))
+        if m and m.group(1) == technology and abs(float(m.group(2)) - level) < 5e-4 and pd.notna(value):
+            return float(value)
+    return default
+
+
+def _own_repeatability(series: pd.DataFrame, ids: pd.Series, level: float, since) -> tuple[np.ndarray, np.ndarray]:
+    """Each unit's repeatability variance at `level` from moving ranges of its lot-adjusted errors since `since`.
+
+    Returns (variance, degrees of freedom) per id; MR-bar / d2 has about 0.62 (n - 1) degrees of freedom.
+    Source: Montgomery, Introduction to Statistical Quality Control, 6.4 (sigma = MR-bar / d2);
+    Cryer & Ryan (1990), JQT 22:187-192 (efficiency of MR-bar / d2 against S).
+    """
+    var = np.zeros(len(ids))
+    dof = np.zeros(len(ids))
+    if series.empty:
+        return var, dof
+    s = series[(np.abs(series["level"].astype(float) - level) < 5e-4)
+               & (pd.to_datetime(series["measured_at"]) > pd.Timestamp(since))]
+    if s.empty:
+        return var, dof
+    mr = s.groupby("instrument_id")["y_adj"].diff().abs()
+    agg = mr.groupby(s["instrument_id"]).agg(["mean", "count"])
+    agg = agg[agg["count"] >= 2].reindex(ids.to_numpy())
+    ok = agg["count"].notna().to_numpy()
+    var[ok] = (agg["mean"].to_numpy(float)[ok] / D2_TWO) ** 2
+    dof[ok] = MR_EFFICIENCY * agg["count"].to_numpy(float)[ok]
+    return var, dof
+
+
+def _post_change(series: pd.DataFrame | None, change_from, as_of: datetime, q: QueueSettings,
+                 slope_mean: float, slope_var: float, column: str = "y_adj"):
+    """The line through a unit's lot-adjusted errors since a detected change, predicted at the next visit.
+
+    Uses the checks from `change_from`, but at least the last `post_change_min_days` and at most
+    `post_change_max_days`, or the last `post_change_min_checks` checks when fewer; x in 30-day units.
+    Returns (LineForecast, start) or None.
+    """
+    if series is None or len(series) < 3:
+        return None
+    t = pd.to_datetime(series["measured_at"])
+    start = min(pd.Timestamp(change_from), pd.Timestamp(as_of) - pd.Timedelta(days=q.post_change_min_days))
+    start = max(start, pd.Timestamp(as_of) - pd.Timedelta(days=q.post_change_max_days))
+    sel = (t >= start).to_numpy()
+    if sel.sum() < q.post_change_min_checks:
+        sel = np.zeros(len(series), dtype=bool)
+        sel[-min(len(series), q.post_change_min_checks):] = True
+    ts = t[sel]
+    start = ts.min()
+    x = ((ts - start).dt.total_seconds() / (86400.0 * 30)).to_numpy()
+    x0 = (pd.Timestamp(as_of) - start).total_seconds() / (86400.0 * 30) + q.horizon_days / 30
+    try:
+        return shrunk_line_forecast(x, series[column].to_numpy(float)[sel], x0, slope_mean, slope_var), start
+    except ValueError:
+        return None
 
 
 def _opt(v):

@@ -129,13 +129,24 @@ class QueueSettings:
     # Evidence beyond the forecast, each as a probability of breach before the next visit; they are
     # combined with the forecast as independent causes: P = 1 - prod(1 - p_i).
     p_out_of_tolerance: float = 0.9     # a check on the unit's last day failed our verdict
-    p_signal_fleet: float = 0.4         # an active signal significant across the fleet (BH)
-    p_signal_local: float = 0.15        # an active signal not significant across the fleet
+    # An active CUSUM/EWMA signal switches the forecast to the line through the unit's checks since
+    # the change (lot-adjusted; its slope shrunk toward its drift before), weighted by how often such
+    # a signal marks a real change: P = (1 - w) P_model + w P_post_change.
+    p_signal_fleet: float = 0.9         # w for a signal significant across the fleet (BH q 0.05)
+    p_signal_local: float = 0.5         # w for a signal not significant across the fleet
+    post_change_min_checks: int = 10    # fewer checks since the onset: the last this many
+    post_change_min_days: int = 30      # the post-change line looks back at least this far (a stable slope)
+    post_change_max_days: int = 90      # the post-change line looks back at most this far
+    # Each unit's repeatability at the reference level (moving ranges over rate_window_days) is shrunk
+    # toward the fleet model's residual variance of its technology with this many prior degrees of freedom.
+    repeatability_prior_df: float = 20.0
+    repeatability_flag_ratio: float = 2.25   # a reason is given when the unit's variance exceeds the prior's by this
     p_calibration_overdue: float = 0.2
     p_silent: float = 0.15
     p_attribute: float = 0.15           # aborted/invalid rate above its Laney p' limit
-    # A lot verdict 'off' that matches the direction of the unit's readings multiplies the
-    # evidence it explains (out of tolerance, signals) by this factor: the lot is the problem.
+    # A lot verdict 'off' that matches the direction of the unit's readings multiplies the evidence it
+    # explains by this factor (the out-of-tolerance cause; for signals, the weight of the hypothesis that
+    # the shift seen on that lot's checks is the unit's own): the lot is the problem.
     lot_explained_factor: float = 0.2
     shrink_to_fleet: bool = True        # empirical Bayes shrinkage of bias and drift before ranking
     rank_simulations: int = 200         # draws for the rank intervals

@@ -5,6 +5,8 @@ from __future__ import annotations
 import shutil
 from pathlib import Path
 
+import duckdb
+
 from dashboard_fixture import build_fleet_db
 
 _CACHE: dict[str, Path] = {}
@@ -16,6 +18,12 @@ def fleet_copy(tmp_dir: Path, name: str = "fleet.duckdb") -> Path:
         base = Path(tmp_dir).parent / "queue-fixture-base"
         base.mkdir(exist_ok=True)
         _CACHE["fleet"] = build_fleet_db(base / "fleet.duckdb")
+        # One unit near tolerance (invented), so the queue has a unit a coordinator should visit: the
+        # dashboard fixture's estimates (bias 2 %, drift 0.33 % per 30 days) are far from 6.25 %.
+        con = duckdb.connect(str(_CACHE["fleet"]))
+        con.execute("UPDATE unit_estimates SET bias_pct = 4.8, bias_ci_low_pct = 4.4, bias_ci_high_pct = 5.2, "
+                    "drift_pct_per_30d = 0.6, drift_ci_low = 0.5, drift_ci_high = 0.7 WHERE instrument_id = 'TX1010'")
+        con.close()
     target = Path(tmp_dir) / name
     shutil.copy(_CACHE["fleet"], target)
     return target

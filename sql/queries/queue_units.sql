@@ -13,9 +13,10 @@ WITH c AS (
     GROUP BY instrument_id
 ),
 cal AS (
+    -- a sensor replacement is followed by a calibration and starts a new baseline as one does
     SELECT instrument_id, max(event_at) AS last_calibration_at
     FROM service_events
-    WHERE event_type = 'calibration' AND event_at <= $as_of
+    WHERE event_type IN ('calibration', 'sensor_replacement') AND event_at <= $as_of
     GROUP BY instrument_id
 ),
 site_last AS (
