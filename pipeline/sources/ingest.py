@@ -10,7 +10,6 @@ rows_read = rows_stored + rows_duplicate + rows_quarantined.
 from __future__ import annotations
 
 import hashlib
-import re
 from collections.abc import Callable, Iterable
 from dataclasses import asdict, dataclass
 from datetime import datetime, timezone
@@ -24,6 +23,7 @@ from pipeline.settings import Settings
 from pipeline.sources.profiles import (CANONICAL, CANONICAL_COLUMNS, CHECK_TYPES, OUTCOMES, TABLES,
                                        SourceProfile)
 from pipeline.sources.pseudonymise import operator_key, pseudonymise
+from pipeline.sources.readers import file_format, read_header, stage_source
 from pipeline.units import _SPELLINGS, TO_STORAGE
 
 
@@ -54,26 +54,6 @@ def sha256_file(path: Path) -> str:
     return digest.hexdigest()
 
 
-def _format(path: Path, profile: SourceProfile) -> str:
-    if profile.format:
-        return profile.format
-    suffix = path.suffix.lower()
-    if suffix in (".jsonl", ".ndjson", ".json"):
-        return "jsonl"
-    if suffix == ".parquet":
-        return "parquet"
-    return "csv"
-
-
-def _header(path: Path, profile: SourceProfile) -> list[str]:
-    try:
-        with open(path, encoding=profile.encoding, newline="") as fh:
-            first = fh.readline().rstrip("\r\n")
-    except (OSError, UnicodeDecodeError, LookupError) as exc:
-        raise InputError(f"cannot read file: {exc}", file=str(path)) from exc
-    return [c.strip().strip('"') for c in first.split(profile.delimiter)]
-
-
 def detect_table(path: Path, columns: list[str], profile: SourceProfile, table: str | None) -> str:
     """--table, else the profile's table, else the file name (sites.csv), else the header."""
     if table:
@@ -88,66 +68,6 @@ def detect_table(path: Path, columns: list[str], profile: SourceProfile, table: 
         if set(cols) == set(columns):
             return name
     return "checks"
-
-
-def _quoted_field_pattern(delim: str) -> str:
-    """RE2 pattern whose group 1 is each field of a line with double-quoted fields."""
-    d = re.escape(delim)
-    return f'(?:^|{d})("(?:[^"]|"")*"|[^{d}"]*)'
-
-
-def _stage(con: duckdb.DuckDBPyConnection, path: Path, profile: SourceProfile, table: str) -> None:
-    """Create temp table _src(line, _malformed, _raw, <canonical columns as VARCHAR>, _tz)."""
-    fmt = _format(path, profile)
-    wanted = list(CANONICAL_COLUMNS[table])
-    if table == "checks" and profile.time_zone_column:
-        wanted.append("_tz")
-    source_name = {c: profile.source_column(c) for c in wanted}
-    if "_tz" in source_name:
-        source_name["_tz"] = profile.time_zone_column
-    if fmt == "csv":
-        header = _header(path, profile) if profile.header else [str(i) for i in range(1, 10_000)]
-        index = {name: i + 1 for i, name in enumerate(header)}
-        n_fields = len(header) if profile.header else None
-        select = []
-        for col in wanted:
-            i = index.get(source_name[col])
-            expr = (f"NULLIF(replace(trim(trim(_f[{i}]), '\"'), '\"\"', '\"'), '')" if i
-                    else "NULL::VARCHAR")
-            select.append(f"{expr} AS {col}")
-        malformed = f"len(_f) <> {n_fields}" if n_fields else "false"
-        try:
-            con.execute(
-                f"""CREATE OR REPLACE TEMP TABLE _src AS
-                SELECT line, {malformed} AS _malformed, _raw, {', '.join(select)}
-                FROM (SELECT ordinality AS line, rtrim(raw, chr(13)) AS _raw,
-                             CASE WHEN contains(raw, '"')
-                                  THEN regexp_extract_all(rtrim(raw, chr(13)), $quoted, 1)
-                                  ELSE string_split(rtrim(raw, chr(13)), $delim) END AS _f
-                      FROM read_csv($path, columns={{'raw': 'VARCHAR'}}, delim=chr(1), quote='',
-                                    escape='', header=false, auto_detect=false, encoding=$enc,
-                                    strict_mode=false) WITH ORDINALITY)
-                WHERE line > {1 if profile.header else 0}""",
-                {"path": str(path), "delim": profile.delimiter, "enc": profile.encoding,
-                 "quoted": _quoted_field_pattern(profile.delimiter)})
-        except duckdb.Error as exc:
-            raise InputError(f"cannot read file: {str(exc).splitlines()[0]}", file=str(path)) from exc
-        return
-    reader = ("read_json($path, format='newline_delimited', records=true)" if fmt == "jsonl"
-              else "read_parquet($path)")
-    try:
-        cols = [r[0] for r in con.execute(f"DESCRIBE SELECT * FROM {reader}", {"path": str(path)}).fetchall()]
-        select = []
-        for col in wanted:
-            src = source_name[col]
-            expr = f'NULLIF(trim(CAST("{src.replace(chr(34), "")}" AS VARCHAR)), \'\')' if src in cols else "NULL::VARCHAR"
-            select.append(f"{expr} AS {col}")
-        con.execute(
-            f"""CREATE OR REPLACE TEMP TABLE _src AS
-            SELECT ordinality AS line, false AS _malformed, NULL::VARCHAR AS _raw, {', '.join(select)}
-            FROM {reader} WITH ORDINALITY""", {"path": str(path)})
-    except duckdb.Error as exc:
-        raise InputError(f"cannot read file: {str(exc).splitlines()[0]}", file=str(path)) from exc
 
 
 def _exec(con: duckdb.DuckDBPyConnection, sql: str, params: dict | None = None):
@@ -284,13 +204,16 @@ def _hours(h: float):
 
 
 def _quarantine(con: duckdb.DuckDBPyConnection, file_id: int, rules, params: dict, source: str = "_p",
-                value_columns: dict[str, str] | None = None) -> int:
-    """Write one quarantine row per problem; mark bad rows in _bad(line). Returns rows quarantined."""
+                value_columns: dict[str, str] | None = None, malformed_message: str = "'wrong number of fields'") -> int:
+    """Write one quarantine row per problem; mark bad rows in _bad(line). Returns rows quarantined.
+
+    `malformed_message` is the SQL text of the message of a malformed row (readers.MALFORMED_MESSAGE).
+    """
     conds = [f"coalesce(({cond}), false)" for _, _, cond, _ in rules]
     _exec(con, f"CREATE OR REPLACE TEMP TABLE _flagged AS SELECT * FROM {source} "
                f"WHERE _malformed OR (NOT _malformed AND ({' OR '.join(conds) or 'false'}))", params)
-    parts = ["SELECT line, NULL AS field, _raw AS value, 'malformed_line' AS reason, "
-             "'wrong number of fields' AS message FROM _flagged WHERE _malformed"]
+    parts = [f"SELECT line, NULL AS field, _raw AS value, 'malformed_line' AS reason, "
+             f"{malformed_message} AS message FROM _flagged WHERE _malformed"]
     for (field, reason, _, message), cond in zip(rules, conds):
         value = (value_columns or {}).get(field, field)
         parts.append(f"SELECT line, '{field}', {value}, '{reason.value}', {message} FROM _flagged "
@@ -347,7 +270,8 @@ _REF_REQUIRED = {"sites": ["site_id", "time_zone"], "instruments": ["instrument_
                  "service_events": ["instrument_id", "event_at", "event_type"]}
 
 
-def _ingest_reference(con, table: str, profile: SourceProfile, file_id: int) -> tuple[int, int, int]:
+def _ingest_reference(con, table: str, profile: SourceProfile, file_id: int,
+                      malformed_message: str) -> tuple[int, int, int]:
     _mapping_tables(con, profile)
     types = _REF_TYPES[table]
     cols = list(CANONICAL_COLUMNS[table])
@@ -376,7 +300,7 @@ def _ingest_reference(con, table: str, profile: SourceProfile, file_id: int) -> 
     joins = {"sites": "LEFT JOIN (SELECT name FROM pg_timezone_names()) z ON z.name = s.time_zone",
              "lots": "LEFT JOIN _units u ON lower(trim(s.units)) = u.spelling"}.get(table, "")
     con.execute(f"CREATE OR REPLACE TEMP TABLE _p AS SELECT s.*, {', '.join(conv)}{extra} FROM _src s {joins}")
-    quarantined = _quarantine(con, file_id, rules, {})
+    quarantined = _quarantine(con, file_id, rules, {}, malformed_message=malformed_message)
     values = []
     for c in cols:
         if table == "lots" and c in ("target", "expanded_uncertainty"):
@@ -411,23 +335,24 @@ def ingest_file(con: duckdb.DuckDBPyConnection, path: str | Path, settings: Sett
         raise InputError(f"cannot read file: {exc.strerror}", file=str(path)) from exc
     now = now or datetime.now(timezone.utc)
     started = datetime.now(timezone.utc).replace(tzinfo=None)
-    fmt = _format(path, profile)
-    header = _header(path, profile) if fmt == "csv" else []
+    fmt = file_format(path, profile)
+    header = read_header(path, profile) if fmt == "csv" else []
     table = detect_table(path, header, profile, table)
     if key is None:
         key = operator_key(settings.ingest.operator_key_file)
     con.execute("BEGIN TRANSACTION")
     try:
         file_id = con.execute("SELECT coalesce(max(file_id), 0) + 1 FROM ingest_ledger").fetchone()[0]
-        _stage(con, path, profile, table)
+        malformed_message = stage_source(con, path, profile, table)
         read = con.execute("SELECT count(*) FROM _src").fetchone()[0]
         if table == "checks":
             params = _parse_checks(con, profile, settings, now)
-            quarantined = _quarantine(con, file_id, _CHECK_RULES, params, value_columns={"time_zone": "zone_raw"})
+            quarantined = _quarantine(con, file_id, _CHECK_RULES, params, value_columns={"time_zone": "zone_raw"},
+                                      malformed_message=malformed_message)
             stored = _store_checks(con, file_id, key)
             duplicate = read - quarantined - stored
         else:
-            stored, duplicate, quarantined = _ingest_reference(con, table, profile, file_id)
+            stored, duplicate, quarantined = _ingest_reference(con, table, profile, file_id, malformed_message)
         finished = datetime.now(timezone.utc).replace(tzinfo=None)
         con.execute("""INSERT INTO ingest_ledger VALUES ($fid, $path, $sha, $table, $profile, $read, $stored,
                        $dup, $q, $started, $finished, $ver)""",

@@ -1,0 +1,204 @@
+"""Read a source file as text into the staging table `_src`, one row per record, with its line number.
+
+CSV and JSON lines are read by DuckDB's CSV reader as one VARCHAR column per physical line
+(`WITH ORDINALITY` gives the line number, the header is line 1), so a bad line is a row to
+quarantine, never a reason to fail the file. Blank lines are not records and are skipped.
+
+- CSV: fields are split on the delimiter in SQL (a quote-aware RE2 split for lines that contain
+  `"`). A line with an odd number of double quotes opens or closes a quoted field that holds a line
+  break (RFC 4180, section 2, rule 6); the lines from one such line to the next are joined into one
+  record, numbered by its first line, when the joined text has the header's field count. An odd
+  line that cannot be joined so (a quote never closed, or a stray quote) is malformed.
+- JSON lines: each line must be one JSON object (`json_valid`, `json_type`); fields are taken by
+  JSON pointer, so profile column names stay parameters and never reach SQL text.
+- Parquet: DuckDB's reader, every column cast to VARCHAR, line = record number.
+
+`_src` holds: line, _malformed, _raw, the canonical columns as VARCHAR (and _tz), and for a CSV
+file with unbalanced quotes _odd. Everything runs in DuckDB: no Python loop per row.
+"""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+import duckdb
+
+from pipeline.errors import InputError
+from pipeline.sources.profiles import CANONICAL_COLUMNS, SourceProfile
+
+# SQL text of the quarantine message of a malformed row in `_src`, by format.
+MALFORMED_MESSAGE = {
+    "csv": "'wrong number of fields'",
+    "csv_quotes": "CASE WHEN _odd THEN 'unbalanced double quote: a quoted field is not closed on this line and no "
+           "later line closes it into a row with the header''s field count' ELSE 'wrong number of fields' END",
+    "jsonl": "'not a JSON object (malformed JSON line)'",
+    "parquet": "'malformed record'",
+}
+
+# read_csv as one text column per physical line: no delimiter, quote or escape of its own.
+_LINES = ("read_csv($path, columns={'raw': 'VARCHAR'}, delim=chr(1), quote='', escape='', header=false, "
+          "auto_detect=false, encoding=$enc, strict_mode=false) WITH ORDINALITY")
+
+
+def file_format(path: Path, profile: SourceProfile) -> str:
+    """csv, jsonl or parquet: the profile's format, else the file suffix."""
+    if profile.format:
+        return profile.format
+    suffix = path.suffix.lower()
+    if suffix in (".jsonl", ".ndjson", ".json"):
+        return "jsonl"
+    if suffix == ".parquet":
+        return "parquet"
+    return "csv"
+
+
+def read_header(path: Path, profile: SourceProfile) -> list[str]:
+    """Column names of a CSV file's first line."""
+    try:
+        with open(path, encoding=profile.encoding, newline="") as fh:
+            first = fh.readline().rstrip("\r\n")
+    except (OSError, UnicodeDecodeError, LookupError) as exc:
+        raise InputError(f"cannot read file: {exc}", file=str(path)) from exc
+    return [c.strip().strip('"') for c in first.split(profile.delimiter)]
+
+
+def _quoted_field_pattern(delim: str) -> str:
+    """RE2 pattern whose group 1 is each field of a line with double-quoted fields."""
+    d = re.escape(delim)
+    return f'(?:^|{d})("(?:[^"]|"")*"|[^{d}"]*)'
+
+
+def _wanted(profile: SourceProfile, table: str) -> dict[str, str]:
+    """Canonical column -> source column name (and _tz -> the profile's zone column)."""
+    wanted = list(CANONICAL_COLUMNS[table])
+    if table == "checks" and profile.time_zone_column:
+        wanted.append("_tz")
+    names = {c: profile.source_column(c) for c in wanted}
+    if "_tz" in names:
+        names["_tz"] = profile.time_zone_column
+    return names
+
+
+def stage_source(con: duckdb.DuckDBPyConnection, path: Path, profile: SourceProfile, table: str) -> str:
+    """Create temp table _src from the file; return the SQL text of its malformed-row message."""
+    fmt = file_format(path, profile)
+    try:
+        if fmt == "csv":
+            return MALFORMED_MESSAGE["csv_quotes" if _stage_csv(con, path, profile, table) else "csv"]
+        if fmt == "jsonl":
+            _stage_jsonl(con, path, profile, table)
+        else:
+            _stage_parquet(con, path, profile, table)
+    except duckdb.Error as exc:
+        raise InputError(f"cannot read file: {str(exc).splitlines()[0]}", file=str(path)) from exc
+    return MALFORMED_MESSAGE[fmt]
+
+
+def _csv_columns(profile: SourceProfile, table: str, header: list[str]) -> list[str]:
+    """SELECT expressions picking each wanted column from the split fields _f by position."""
+    index = {name: i + 1 for i, name in enumerate(header)}
+    select = []
+    for col, src in _wanted(profile, table).items():
+        i = index.get(src)
+        expr = f"NULLIF(replace(trim(trim(_f[{i}]), '\"'), '\"\"', '\"'), '')" if i else "NULL::VARCHAR"
+        select.append(f"{expr} AS {col}")
+    return select
+
+
+def _stage_csv(con: duckdb.DuckDBPyConnection, path: Path, profile: SourceProfile, table: str) -> bool:
+    """Stage a CSV file; True when it has lines with unbalanced quotes (then _src has an _odd column)."""
+    header = read_header(path, profile) if profile.header else [str(i) for i in range(1, 10_000)]
+    n_fields = len(header) if profile.header else None
+    select = _csv_columns(profile, table, header)
+    split = """CASE WHEN contains(_raw, '"') THEN regexp_extract_all(_raw, $quoted, 1)
+                    ELSE string_split(_raw, $delim) END"""
+    params = {"path": str(path), "delim": profile.delimiter, "enc": profile.encoding,
+              "quoted": _quoted_field_pattern(profile.delimiter)}
+    malformed = f"len(_f) <> {n_fields}" if n_fields else "len(_f) < 0"
+    # _f (and so _malformed) is NULL for a blank line and for a line with an odd number of quotes;
+    # the quote count runs only on lines that contain a quote, inside the branch that splits them.
+    con.execute(
+        f"""CREATE OR REPLACE TEMP TABLE _src AS
+        SELECT line, {malformed} AS _malformed, _raw, {', '.join(select)}
+        FROM (SELECT ordinality AS line, rtrim(raw, chr(13)) AS _raw,
+                     CASE WHEN contains(raw, '"')
+                          THEN CASE WHEN (length(raw) - length(replace(raw, '"', ''))) % 2 = 0
+                                    THEN regexp_extract_all(rtrim(raw, chr(13)), $quoted, 1) END
+                          ELSE string_split(rtrim(raw, chr(13)), $delim) END AS _f
+              FROM {_LINES})
+        WHERE line > {1 if profile.header else 0}""", params)
+    # The common file has neither: a scan of one boolean column's validity finds out.
+    if not con.execute("SELECT count(*) FROM _src WHERE _malformed IS NULL").fetchone()[0]:
+        return False
+    con.execute("DELETE FROM _src WHERE _raw IS NULL")   # blank lines are not records
+    con.execute("ALTER TABLE _src ADD COLUMN _odd BOOLEAN DEFAULT false")
+    if not con.execute("UPDATE _src SET _odd = true WHERE _malformed IS NULL").fetchone()[0]:
+        return False
+    _join_quoted_line_breaks(con, select, malformed, split, params)
+    return True
+
+
+def _join_quoted_line_breaks(con: duckdb.DuckDBPyConnection, select: list[str], malformed: str, split: str,
+                             params: dict) -> None:
+    """Join the lines of records whose quoted fields hold line breaks; mark odd lines left over malformed.
+
+    Odd lines pair in order (1st with 2nd, 3rd with 4th, ...): a quoted field opened on one closes on
+    the next. A pair whose lines joined (with the line breaks, blank lines included) split to the
+    header's field count becomes one record numbered by its first line; otherwise its lines stay
+    as they are and the odd ones are malformed.
+    """
+    con.execute("""
+        CREATE OR REPLACE TEMP TABLE _spans AS
+        WITH o AS (SELECT line, row_number() OVER (ORDER BY line) AS k FROM _src WHERE _odd)
+        SELECT a.line AS first_line, b.line AS last_line FROM o a JOIN o b ON b.k = a.k + 1 WHERE a.k % 2 = 1""")
+    con.execute(f"""
+        CREATE OR REPLACE TEMP TABLE _joined AS
+        SELECT line, last_line, _raw, {', '.join(select)}, {malformed} AS _bad_join
+        FROM (SELECT line, last_line, _raw, {split} AS _f
+              FROM (SELECT sp.first_line AS line, sp.last_line,
+                           string_agg(repeat(chr(10), s.line - coalesce(s.prev, s.line)) || s._raw, '' ORDER BY s.line)
+                             AS _raw
+                    FROM _spans sp
+                    JOIN (SELECT s.line, s._raw, sp2.first_line,
+                                 lag(s.line) OVER (PARTITION BY sp2.first_line ORDER BY s.line) AS prev
+                          FROM _src s JOIN _spans sp2 ON s.line BETWEEN sp2.first_line AND sp2.last_line) s
+                      ON s.first_line = sp.first_line
+                    GROUP BY sp.first_line, sp.last_line))""",
+                {k: v for k, v in params.items() if k in ("quoted", "delim")})
+    con.execute("""DELETE FROM _src WHERE line IN (
+                     SELECT s.line FROM _src s JOIN _joined j ON s.line BETWEEN j.line AND j.last_line
+                     WHERE NOT j._bad_join)""")
+    con.execute("INSERT INTO _src BY NAME SELECT * EXCLUDE (last_line, _bad_join), false AS _malformed, false AS _odd "
+                "FROM _joined WHERE NOT _bad_join")
+    con.execute("UPDATE _src SET _malformed = true WHERE _odd")
+    con.execute("DROP TABLE _spans")
+    con.execute("DROP TABLE _joined")
+
+
+def _stage_jsonl(con: duckdb.DuckDBPyConnection, path: Path, profile: SourceProfile, table: str) -> None:
+    names = _wanted(profile, table)
+    # JSON pointer (RFC 6901): '~' is written '~0' and '/' is written '~1'
+    pointers = ["/" + src.replace("~", "~0").replace("/", "~1") for src in names.values()]
+    select = [f"NULLIF(trim(_v[{i + 1}]), '') AS {col}" for i, col in enumerate(names)]
+    con.execute(
+        f"""CREATE OR REPLACE TEMP TABLE _src AS
+        SELECT line, NOT _object AS _malformed, _raw, {', '.join(select)}
+        FROM (SELECT line, _raw, _object, json_extract_string(CASE WHEN _object THEN _raw END, $pointers) AS _v
+              FROM (SELECT line, _raw, CASE WHEN json_valid(_raw) THEN json_type(_raw) = 'OBJECT' ELSE false END AS _object
+                    FROM (SELECT ordinality AS line, rtrim(raw, chr(13)) AS _raw FROM {_LINES})
+                    WHERE trim(_raw) <> ''))""",
+        {"path": str(path), "enc": profile.encoding, "pointers": pointers})
+
+
+def _stage_parquet(con: duckdb.DuckDBPyConnection, path: Path, profile: SourceProfile, table: str) -> None:
+    reader = "read_parquet($path)"
+    cols = [r[0] for r in con.execute(f"DESCRIBE SELECT * FROM {reader}", {"path": str(path)}).fetchall()]
+    select = []
+    for col, src in _wanted(profile, table).items():
+        expr = f'NULLIF(trim(CAST("{src.replace(chr(34), "")}" AS VARCHAR)), \'\')' if src in cols else "NULL::VARCHAR"
+        select.append(f"{expr} AS {col}")
+    con.execute(
+        f"""CREATE OR REPLACE TEMP TABLE _src AS
+        SELECT ordinality AS line, false AS _malformed, NULL::VARCHAR AS _raw, {', '.join(select)}
+        FROM {reader} WITH ORDINALITY""", {"path": str(path)})
