@@ -17,6 +17,7 @@ from datetime import UTC, datetime
 import duckdb
 import numpy as np
 import pandas as pd
+import pyarrow as pa
 
 from pipeline import __version__ as SOFTWARE_VERSION
 from pipeline.charts import changepoint, short_run
@@ -30,10 +31,11 @@ from pipeline.charts.xbar_s import xbar_s_groups
 from pipeline.charts.individuals import moving_range, mr_ucl_standardised
 from pipeline.charts.run_rules import apply_run_rules, select_rules
 from pipeline.charts.signals import crossings, fleet_significance, impact_checks, signal_p_values
-from pipeline.db import query_df, transaction
+from pipeline.db import sql_text, transaction
 from pipeline.settings import Settings
 
 KEY = ["instrument_id", "level", "baseline_period"]
+CHECK_TYPES = ["control", "daily", "verification"]  # the codes of charts_input.sql
 TAIL = 20  # stored points prepended per group: >= own baseline size and the longest run rule (15)
 
 
@@ -72,6 +74,18 @@ def _starts(frame: pd.DataFrame) -> np.ndarray:
     return s
 
 
+def pooled_lookup(frame: pd.DataFrame, pooled: pd.DataFrame) -> np.ndarray:
+    """The frozen pooled sigma of each row's technology, standard kind and level (NaN if none yet)."""
+    pool_key = ["technology", "standard_kind", "level"]
+    if frame.empty:
+        return np.empty(0)
+    code = frame.groupby(pool_key, observed=True, sort=False, dropna=False).ngroup().to_numpy()
+    first = np.unique(code, return_index=True)[1]
+    keys = frame[pool_key].iloc[first].astype({"technology": str, "standard_kind": str})
+    sigma = keys.merge(pooled, how="left", on=pool_key)["sigma"].to_numpy(dtype=float)
+    return sigma[code]
+
+
 def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, own: pd.DataFrame,
                    pooled: pd.DataFrame, params: dict) -> dict[str, pd.DataFrame]:
     """Pure chart computation for new checks of many groups (no database access).
@@ -93,7 +107,11 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
         frame = frame.sort_values(KEY + ["old", "measured_at", "check_id"], ascending=[True, True, True, False, True, True],
                                   kind="stable").reset_index(drop=True)
     # Unit names as categorical codes: string arrays are the slow part at fleet scale.
-    inst_codes, inst_names = pd.factorize(frame["instrument_id"])
+    inst = frame["instrument_id"]
+    if isinstance(inst.dtype, pd.CategoricalDtype):
+        inst_codes, inst_names = inst.cat.codes.to_numpy(), inst.cat.categories
+    else:
+        inst_codes, inst_names = pd.factorize(inst)
     frame["instrument_id"] = pd.Categorical.from_codes(inst_codes, categories=inst_names)
 
     def unit_of(idx):
@@ -112,8 +130,7 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     n_tail = pd.Series(old.astype(int)).groupby(np.cumsum(starts)).transform("sum").to_numpy()
     position = n0 - n_tail + pos0 + 1
     # Quesenberry Q with the frozen pooled sigma (sum of x before the first row of this frame).
-    sig_pool = (frame[["technology", "standard_kind", "level"]]
-                .merge(pooled, how="left", on=["technology", "standard_kind", "level"])["sigma"].to_numpy())
+    sig_pool = pooled_lookup(frame, pooled)
     tail_sum = pd.Series(np.where(old, x, 0.0)).groupby(np.cumsum(starts)).transform("sum").to_numpy()
     q, q_center, q_scale = short_run.quesenberry_q(x, starts, sig_pool, r0=position - pos0 - 1, sum0=sum0 - tail_sum)
     # Own baseline: stored, or frozen now from the first n_min checks of the segment.
@@ -139,7 +156,7 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
         z = np.where(old, frame["z"].to_numpy(dtype=float, na_value=np.nan), z)
     center_out = np.where(use_own, center, q_center)
     sigma_out = np.where(use_own, sigma, q_scale)
-    source = np.where(use_own, "unit", "fleet_pooled")
+    source = pd.Categorical.from_codes(use_own.astype(np.int8), categories=["fleet_pooled", "unit"])
     mr = moving_range(z, starts)
     # Run rules on the standardised individuals (tail included for context).
     events = apply_run_rules(z, starts, params["run_rules"]["set"], tuple(params["run_rules"]["rules"])).events
@@ -169,9 +186,9 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
         "measured_at": nf["measured_at"].to_numpy(), "position": position[nm].astype(np.int64),
         "relative_error": x[nm], "z": zn, "moving_range": mr[nm],
         "cusum_upper": cus.upper, "cusum_lower": cus.lower, "ewma": ew.ewma, "ewma_lcl": ew.lcl, "ewma_ucl": ew.ucl,
-        "center": center_out[nm], "sigma": sigma_out[nm], "sigma_source": source[nm],
+        "center": center_out[nm], "sigma": sigma_out[nm], "sigma_source": source[np.flatnonzero(nm)],
         "ind_lcl": -3.0, "ind_ucl": 3.0, "mr_ucl": mr_limit,
-        "cusum_upper_run": run_u, "cusum_lower_run": run_l})
+        "cusum_upper_run": run_u, "cusum_lower_run": run_l}, copy=False)  # no block copy of 9 M rows
     # Signals.
     def prev_of(a, a0):
         p = np.empty_like(a)
@@ -242,7 +259,47 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
         "cusum_upper": cus.upper[last], "cusum_lower": cus.lower[last],
         "cusum_upper_run": run_u[last], "cusum_lower_run": run_l[last], "ewma": ew.ewma[last],
         "last_measured_at": points["measured_at"].to_numpy()[last], "last_check_id": points["check_id"].to_numpy()[last]})
-    return {"points": points, "signals": signals, "baselines": baselines, "state": new_state}
+    return {"points": points, "signals": signals, "baselines": baselines, "state": new_state,
+            "check_type": frame["check_type"].array[np.flatnonzero(nm)]}
+
+
+def read_chart_input(con: duckdb.DuckDBPyConnection, with_rebaselines: bool, through: int,
+                     recharge: set[str]) -> pd.DataFrame:
+    """Checks to chart (sql/queries/charts_input.sql), names as pandas categoricals.
+
+    The query returns integer codes into small name tables made here, because converting
+    millions of repeated strings is the slow part of reading a whole fleet.
+    """
+    con.execute("CREATE OR REPLACE TEMP TABLE _bf_units AS SELECT instrument_id, "
+                "CAST(row_number() OVER (ORDER BY instrument_id) - 1 AS INTEGER) AS unit_code "
+                "FROM (SELECT instrument_id FROM instruments UNION SELECT DISTINCT instrument_id FROM checks)")
+    con.execute("CREATE OR REPLACE TEMP TABLE _bf_technologies AS SELECT name, "
+                "CAST(row_number() OVER (ORDER BY name) - 1 AS INTEGER) AS code FROM "
+                "(SELECT 'unknown' AS name UNION SELECT DISTINCT technology FROM instruments WHERE technology IS NOT NULL)")
+    con.execute("CREATE OR REPLACE TEMP TABLE _bf_kinds AS SELECT name, "
+                "CAST(row_number() OVER (ORDER BY name) - 1 AS INTEGER) AS code FROM "
+                "(SELECT 'unknown' AS name UNION SELECT DISTINCT standard_kind FROM lots WHERE standard_kind IS NOT NULL)")
+    con.execute("CREATE OR REPLACE TEMP TABLE _bf_recharge AS SELECT unnest($u::VARCHAR[]) AS instrument_id",
+                {"u": sorted(recharge)})
+    try:
+        raw = con.execute(sql_text("queries/charts_input"),
+                          {"with_rebaselines": with_rebaselines, "through": through}).fetchnumpy()
+        names = {t: [r[0] for r in con.execute(f"SELECT {c} FROM {t} ORDER BY {o}").fetchall()]
+                 for t, c, o in (("_bf_units", "instrument_id", "unit_code"), ("_bf_technologies", "name", "code"),
+                                 ("_bf_kinds", "name", "code"))}
+    finally:
+        for t in ("_bf_units", "_bf_technologies", "_bf_kinds", "_bf_recharge"):
+            con.execute(f"DROP TABLE IF EXISTS {t}")
+    def cat(codes, categories):
+        return pd.Categorical.from_codes(np.asarray(codes, dtype=np.int32), categories=categories)
+    return pd.DataFrame({
+        "check_id": raw["check_id"], "instrument_id": cat(raw["unit_code"], names["_bf_units"]),
+        "level": raw["level"], "measured_at": raw["measured_at"],
+        "check_type": cat(raw["check_type_code"], CHECK_TYPES),
+        "relative_error": raw["relative_error"], "expected": raw["expected"], "measured": raw["measured"],
+        "technology": cat(raw["technology_code"], names["_bf_technologies"]),
+        "standard_kind": cat(raw["kind_code"], names["_bf_kinds"]),
+        "baseline_period": raw["baseline_period"]}, copy=False)
 
 
 def _load_state(con, keys: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
@@ -279,7 +336,18 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
     sync_standards_settings(con, settings)
     mode = "incremental" if con.execute("SELECT count(*) FROM chart_points").fetchall()[0][0] else "full"
     with_rb = bool(con.execute("SELECT count(*) > 0 FROM chart_rebaselines").fetchall()[0][0])
-    new = query_df(con, "queries/charts_input", with_rebaselines=with_rb)
+    through, counted, last_run_at = con.execute(
+        "SELECT checks_through, checks_counted, started_at FROM chart_runs ORDER BY run_id DESC LIMIT 1").fetchone() \
+        or (0, 0, None)
+    top, n_top = con.execute("SELECT coalesce(max(check_id), 0), count(*) FROM check_results").fetchone()
+    # Ingest gives new checks higher ids; if checks appeared below the mark, read them all.
+    if not through or con.execute("SELECT count(*) FROM check_results WHERE check_id <= $t",
+                                  {"t": through}).fetchone()[0] != counted:
+        through = 0
+    # Units whose points a re-baseline removed since the last run are charted again from there.
+    recharge = {r[0] for r in con.execute("SELECT DISTINCT instrument_id FROM chart_rebaselines WHERE recorded_at >= $t",
+                                          {"t": last_run_at or datetime(1900, 1, 1)}).fetchall()}
+    new = read_chart_input(con, with_rb, through, recharge)
     keys = new[KEY].drop_duplicates().reset_index(drop=True)
     state, own, tail = _load_state(con, keys)
     if len(state):
@@ -296,14 +364,14 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
                                     "AND t.level = l.level AND t.baseline_period = l.baseline_period")
             finally:
                 con.unregister("_bf_late")
-            new = query_df(con, "queries/charts_input", with_rebaselines=with_rb)
+            recharge |= set(late["instrument_id"].astype(str))
+            new = read_chart_input(con, with_rb, through, recharge)
+            keys = new[KEY].drop_duplicates().reset_index(drop=True)
             state, own, tail = _load_state(con, keys)
     pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
-    with_key = new[["technology", "standard_kind", "level"]].drop_duplicates()
-    missing = with_key.merge(pooled, how="left", on=["technology", "standard_kind", "level"])
-    missing = missing[missing["sigma"].isna()][["technology", "standard_kind", "level"]]
-    if len(missing):
-        sub = new.merge(missing, on=["technology", "standard_kind", "level"])
+    missing = np.isnan(pooled_lookup(new, pooled))
+    if missing.any():
+        sub = new[missing] if not missing.all() else new
         sub = sub.assign(gid=_starts(sub).cumsum())
         fresh = pooled_sigma(sub).assign(frozen_at=started, method=POOLED_METHOD)
         con.execute("INSERT INTO chart_pooled_sigma SELECT technology, standard_kind, level, sigma, n_pairs, "
@@ -312,8 +380,8 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
     t_read = time.perf_counter() - t0
     out = compute_charts(new, tail, state, own, pooled, params)
     window = settings.charts.replicate_window_minutes
-    typed = out["points"][["check_id", "instrument_id", "level", "measured_at", "z", "position"]].merge(
-        new[["check_id", "check_type"]], on="check_id")
+    typed = out["points"][["check_id", "instrument_id", "level", "measured_at", "z", "position"]].assign(
+        check_type=out["check_type"])
     groups = xbar_s_groups(typed, window)
     extra = []
     if len(groups):
@@ -362,7 +430,7 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
     st = out["state"]
     pts = out["points"]
     with transaction(con):
-        con.register("_bf_points", pts)
+        con.register("_bf_points", pa.Table.from_pandas(pts, preserve_index=False))  # Arrow: no copy
         con.execute("INSERT INTO chart_points BY NAME SELECT * FROM _bf_points")
         con.unregister("_bf_points")
         con.register("_bf_state", st)
@@ -389,10 +457,12 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
             con.execute("INSERT OR IGNORE INTO chart_linearity BY NAME SELECT * FROM _bf_lin")
             con.unregister("_bf_lin")
         duration = time.perf_counter() - t0
-        con.execute("INSERT INTO chart_runs VALUES ($id, $at, $d, $mode, $n, $g, $s, $b, $end, $p, $v)",
+        con.execute("INSERT INTO chart_runs (run_id, started_at, duration_s, mode, n_new_checks, n_groups, n_signals, "
+                    "n_baselines, data_end, parameters, software_version, checks_through, checks_counted) "
+                    "VALUES ($id, $at, $d, $mode, $n, $g, $s, $b, $end, $p, $v, $through, $counted)",
                     {"id": run_id, "at": started, "d": duration, "mode": mode, "n": len(pts), "g": len(st),
                      "s": len(sig), "b": len(bl), "end": data_end, "p": json.dumps(params, default=str),
-                     "v": SOFTWARE_VERSION})
+                     "v": SOFTWARE_VERSION, "through": top, "counted": n_top})
     return AnalysisRun(run_id=run_id, mode=mode, n_new_checks=len(pts), n_groups=len(st), n_signals=len(sig),
                        n_baselines=len(bl), duration_s=duration, parameters=params, data_end=data_end,
                        timings={"read": t_read, "compute": t_compute, "store": duration - t_read - t_compute})

@@ -1,0 +1,38 @@
+"""Impact windows: control checks of the signal's unit from onset to signal, against a direct count."""
+
+from __future__ import annotations
+
+import duckdb
+import numpy as np
+import pandas as pd
+
+from pipeline.charts.signals import impact_checks
+from pipeline.db import migrate
+
+
+def test_impact_checks_equal_a_direct_count():
+    rng = np.random.default_rng(3)
+    con = duckdb.connect(":memory:")
+    migrate(con)
+    n = 400
+    checks = pd.DataFrame({
+        "check_id": np.arange(1, n + 1), "instrument_id": rng.choice(["A", "B", "C"], n),
+        "measured_at": pd.Timestamp("2026-01-01") + pd.to_timedelta(rng.integers(0, 30 * 86400, n), unit="s"),
+        "lot_id": "L", "check_type": rng.choice(["control", "daily", "calibration"], n), "target": 0.08,
+        "measured": 0.08, "units": "g/210L", "simulator_temp_c": None, "pressure_kpa": None, "site_id": None,
+        "operator_id": None, "outcome": "pass", "file_id": 1, "line": np.arange(n)})
+    con.register("c", checks)
+    con.execute("INSERT INTO checks SELECT * FROM c")
+    # signals on check times (inclusive ends), some with an onset before, some without one
+    pick = checks.sample(60, random_state=1)
+    onset = pick["measured_at"] - pd.to_timedelta(rng.integers(0, 5 * 86400, len(pick)), unit="s")
+    sig = pd.DataFrame({"instrument_id": pick["instrument_id"].to_numpy(),
+                        "measured_at": pick["measured_at"].to_numpy(),
+                        "onset_at": np.where(rng.random(len(pick)) < 0.3, pd.NaT, onset)})
+    got = impact_checks(con, sig)
+    ctl = checks[checks["check_type"] == "control"]
+    start = sig["onset_at"].fillna(sig["measured_at"])
+    want = [int(((ctl["instrument_id"] == u) & (ctl["measured_at"] >= a) & (ctl["measured_at"] <= b)).sum())
+            for u, a, b in zip(sig["instrument_id"], start, sig["measured_at"])]
+    assert got.tolist() == want
+    assert max(want) > 1
