@@ -55,24 +55,30 @@ def grouped_last_true(flags: np.ndarray, starts: np.ndarray) -> np.ndarray:
     return np.where(last >= first, last, -1)
 
 
-def grouped_lag(values: np.ndarray, starts: np.ndarray, lag: int = 1, fill: float = np.nan) -> np.ndarray:
-    """values shifted by `lag` rows inside each group (fill where the lag leaves the group)."""
+def grouped_lag(values: np.ndarray, starts: np.ndarray, lag: int = 1, fill: float = np.nan, *,
+                pos: np.ndarray | None = None) -> np.ndarray:
+    """values shifted by `lag` rows inside each group (fill where the lag leaves the group).
+
+    pos: position_in_group(starts), when the caller has it already."""
     values = np.asarray(values, dtype=float)
     out = np.full(len(values), fill)
     if lag < len(values):
         out[lag:] = values[:-lag] if lag else values
-    pos = position_in_group(starts)
+    pos = position_in_group(starts) if pos is None else pos
     out[pos < lag] = fill
     return out
 
 
-def grouped_rolling_sum(flags: np.ndarray, starts: np.ndarray, window: int) -> np.ndarray:
-    """Sum of the last `window` values inside each group; NaN where fewer than `window` rows exist."""
+def grouped_rolling_sum(flags: np.ndarray, starts: np.ndarray, window: int, *,
+                        pos: np.ndarray | None = None) -> np.ndarray:
+    """Sum of the last `window` values inside each group; NaN where fewer than `window` rows exist.
+
+    pos: position_in_group(starts), when the caller has it already."""
     values = np.asarray(flags, dtype=float)
     c = np.concatenate([[0.0], np.cumsum(values)])
     n = len(values)
     idx = np.arange(n)
     lo = np.maximum(idx - window + 1, 0)
     out = c[idx + 1] - c[lo]
-    pos = position_in_group(starts)
+    pos = position_in_group(starts) if pos is None else pos
     return np.where(pos >= window - 1, out, np.nan)

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from pipeline.charts.grouping import grouped_lag, grouped_rolling_sum
+from pipeline.charts.grouping import grouped_lag, grouped_rolling_sum, position_in_group
 
 # rule name -> (description, window)
 RULES: dict[str, dict[str, tuple[str, int]]] = {
@@ -61,11 +61,10 @@ def select_rules(rule_set: str, rules: tuple[str, ...] | None = None) -> tuple[s
     return tuple(rules)
 
 
-def _count(flags, starts, w):
-    return grouped_rolling_sum(flags, starts, w)
+def _rule_hits(name: str, z: np.ndarray, starts: np.ndarray, pos: np.ndarray) -> list[tuple[np.ndarray, str]]:
+    def _count(flags, starts, w):
+        return grouped_rolling_sum(flags, starts, w, pos=pos)
 
-
-def _rule_hits(name: str, z: np.ndarray, starts: np.ndarray) -> list[tuple[np.ndarray, str]]:
     up, down = z > 0, z < 0
     if name in ("WE1", "N1"):
         return [(z > 3, "up"), (z < -3, "down")]
@@ -76,11 +75,11 @@ def _rule_hits(name: str, z: np.ndarray, starts: np.ndarray) -> list[tuple[np.nd
     if name in ("WE4", "N2"):
         w = 8 if name == "WE4" else 9
         return [(_count(up, starts, w) == w, "up"), (_count(down, starts, w) == w, "down")]
-    d = z - grouped_lag(z, starts, 1)
+    d = z - grouped_lag(z, starts, 1, pos=pos)
     if name == "N3":
         return [(_count(d > 0, starts, 5) == 5, "up"), (_count(d < 0, starts, 5) == 5, "down")]
     if name == "N4":
-        alt = (d * grouped_lag(d, starts, 1)) < 0
+        alt = (d * grouped_lag(d, starts, 1, pos=pos)) < 0
         return [(_count(alt, starts, 12) == 12, "up")]
     if name == "N7":
         return [(_count(np.abs(z) < 1, starts, 15) == 15, "up")]
@@ -109,11 +108,12 @@ def apply_run_rules(z: np.ndarray, starts: np.ndarray | None = None, rule_set: s
         if len(z):
             starts[0] = True
     frames = []
+    pos = position_in_group(starts)
     for name in names:
-        for hit, direction in _rule_hits(name, z, starts):
+        for hit, direction in _rule_hits(name, z, starts, pos):
             hit = np.nan_to_num(np.asarray(hit, dtype=float)) > 0
             if only_onset:
-                prev = grouped_lag(hit.astype(float), starts, 1, fill=0.0) > 0
+                prev = grouped_lag(hit.astype(float), starts, 1, fill=0.0, pos=pos) > 0
                 hit = hit & ~prev
             rows = np.flatnonzero(hit)
             if len(rows):

@@ -6,7 +6,7 @@ import numpy as np
 import pandas as pd
 from scipy.stats import norm
 
-from pipeline.charts.fleet_alarms import benjamini_hochberg, cusum_signal_p_values, ewma_signal_p_values
+from pipeline.charts.fleet_alarms import benjamini_hochberg_arrays, cusum_signal_p_values, ewma_signal_p_values
 
 SIGNAL_COLUMNS = ["instrument_id", "level", "check_id", "measured_at", "chart", "rule", "direction",
                   "size", "onset_at", "p_value"]
@@ -40,8 +40,7 @@ def fleet_significance(p: np.ndarray, q: float) -> np.ndarray:
     out = np.full(len(p), np.nan)
     ok = np.isfinite(p)
     if ok.any():
-        res = benjamini_hochberg(p[ok].tolist(), q)
-        out[ok] = np.asarray(res.rejected, dtype=float)
+        out[ok] = benjamini_hochberg_arrays(p[ok], q)[0].astype(float)
     return out
 
 
@@ -61,7 +60,7 @@ def impact_checks(con, sig: pd.DataFrame) -> np.ndarray:
                                                     "code": np.arange(len(names), dtype=np.int64)}))
     try:
         ctl = con.execute("SELECT u.code, c.measured_at FROM checks c JOIN _bf_signal_units u USING (instrument_id) "
-                          "WHERE c.check_type = 'control' AND c.measured_at >= $lo ORDER BY 1, 2",
+                          "WHERE c.check_type = 'control' AND c.measured_at >= $lo",
                           {"lo": pd.Timestamp(lo).to_pydatetime()}).fetchnumpy()
     finally:
         con.unregister("_bf_signal_units")
@@ -69,6 +68,11 @@ def impact_checks(con, sig: pd.DataFrame) -> np.ndarray:
 
     def key(code, t):
         return np.asarray(code, dtype=np.int64) * shift + (np.asarray(t, dtype="datetime64[us]") - lo).astype(np.int64)
-    keys = key(ctl["code"], ctl["measured_at"])
-    return (np.searchsorted(keys, key(codes, at), side="right")
-            - np.searchsorted(keys, key(codes, onset), side="left")).astype(np.int64)
+    keys = np.sort(key(ctl["code"], ctl["measured_at"]))
+
+    def search(needles, side):  # sorted needles: the searches walk the keys in order
+        order = np.argsort(needles, kind="stable")
+        out = np.empty(len(needles), dtype=np.int64)
+        out[order] = np.searchsorted(keys, needles[order], side=side)
+        return out
+    return search(key(codes, at), "right") - search(key(codes, onset), "left")
