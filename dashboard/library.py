@@ -122,7 +122,7 @@ def instrument_record(instrument_id: str, start: dt.date | None, end: dt.date | 
     if fn is None or loaders.data_token() is None:
         return None
     with tempfile.TemporaryDirectory() as tmp, loaders.reader_connection() as con:
-        out = Path(tmp) / f"instrument-record-{instrument_id}.pdf"
+        out = Path(tmp) / f"instrument-record-{instrument_id}.html"
         written = fn(con, loaders.settings(), instrument_id, start, end, out)
         path = Path(written) if isinstance(written, (str, Path)) else out
         if not path.exists():

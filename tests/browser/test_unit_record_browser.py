@@ -91,8 +91,6 @@ def test_record_button_produces_a_self_contained_html_record(record):
     assert f"<title>Instrument record {record['unit']} {record['start']} to {record['end']}</title>" in html
 
 
-@pytest.mark.xfail(strict=True, raises=AssertionError, reason="dashboard/library.py instrument_record names the HTML record "
-                                       "instrument-record-<unit>.pdf and serves it as application/pdf")
 def test_record_is_offered_as_an_html_file(record):
     # RFC 2854 (text/html media type) and the .html file name: the browser opens what it saves
     assert record["name"] == f"instrument-record-{record['unit']}.html"
