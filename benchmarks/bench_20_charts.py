@@ -96,9 +96,18 @@ def main(n_units: int = 5000, per_unit: int = 2000) -> None:
                 {"e": end})
     con.execute("DELETE FROM checks WHERE measured_at > $e - INTERVAL 7 DAY", {"e": end})
     settings = Settings()
+    # check_results (expected values) is filled at ingest; bring it in line with the trimmed
+    # checks before timing, as ingest would have.
+    from pipeline.standards import sync_standards_settings
+    t0 = time.perf_counter()
+    sync_standards_settings(con, settings)
+    t_refresh = time.perf_counter() - t0
     t0 = time.perf_counter()
     full = analyse_fleet(con, settings)
     t_full = time.perf_counter() - t0
+    # The week arrives as an ingest delivers it: new check ids above every stored one. The
+    # incremental time includes bringing check_results up to date for it.
+    con.execute("UPDATE _bench_week SET check_id = check_id + (SELECT max(check_id) FROM checks)")
     con.execute("INSERT INTO checks SELECT * FROM _bench_week")
     t0 = time.perf_counter()
     inc = analyse_fleet(con, settings)
@@ -125,6 +134,8 @@ def main(n_units: int = 5000, per_unit: int = 2000) -> None:
     ti = inc.timings
     print(f"incremental parts: read {ti['read']:.2f} s, compute {ti['compute']:.2f} s, store {ti['store']:.2f} s")
     print(f"incremental week:{t_inc:8.2f} s  ({inc.n_new_checks:,} checks)   target < 3 s")
+    print(f"(not timed above: check_results brought in line with the trimmed checks in {t_refresh:.1f} s, "
+          "work that ingest does)")
 
 
 if __name__ == "__main__":
