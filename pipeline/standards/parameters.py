@@ -77,7 +77,29 @@ def sync_standards_settings(con: duckdb.DuckDBPyConnection, settings: Settings |
         raise
 
 
+def _stored(con: duckdb.DuckDBPyConnection) -> tuple:
+    """What the three settings tables hold now, in the shape _wanted gives."""
+    params = con.execute("SELECT simulator_nominal_c, simulator_window_c, correct_wet_bath_temperature, "
+                         "correct_dry_gas_pressure, wet_bath_temperature_coefficient, reference_pressure_kpa, "
+                         "settings_digest FROM standards_parameters WHERE parameters_id = 1").fetchone()
+    comp = con.execute("SELECT applies_to, name FROM standards_compensating ORDER BY ALL").fetchall()
+    rules = con.execute("SELECT rule_id, check_type, level_milli, absolute, relative FROM tolerance_rules "
+                        "ORDER BY rule_id").fetchall()
+    return params, comp, rules
+
+
+def _wanted(std: StandardsSettings, digest: str | None) -> tuple:
+    params = (std.simulator_nominal_c, std.simulator_window_c, std.correct_wet_bath_temperature,
+              std.correct_dry_gas_pressure, std.wet_bath_temperature_coefficient, std.reference_pressure_kpa, digest)
+    comp = sorted([("technology", n) for n in set(std.pressure_compensating_technologies)]
+                  + [("model", n) for n in set(std.pressure_compensating_models)])
+    rules = [(i, r.check_type, level_milli(r.level), r.absolute, r.relative) for i, r in enumerate(std.tolerance_rules)]
+    return params, comp, rules
+
+
 def _write(con: duckdb.DuckDBPyConnection, std: StandardsSettings, digest: str | None) -> None:
+    if _stored(con) == _wanted(std, digest):   # unchanged: no writes (a writer syncs on every run)
+        return
     con.execute(
         "UPDATE standards_parameters SET simulator_nominal_c = $nominal, simulator_window_c = $window, "
         "correct_wet_bath_temperature = $wet, correct_dry_gas_pressure = $dry, "

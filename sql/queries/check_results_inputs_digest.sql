@@ -1,18 +1,19 @@
 -- name: check_results_inputs_digest
--- Digests of what check_results depends on besides checks: the reference tables and the
--- standards settings (inputs), and the baseline and solution-change events (events).
+-- Fingerprints of what check_results depends on besides checks: the reference tables and the
+-- standards settings (inputs), and the baseline and solution-change events (events). Each table
+-- contributes its row count and the sum of its rows' hashes (order-independent, cheap at fleet size);
+-- a change of any row changes the fingerprint with overwhelming probability.
 SELECT
-    md5(concat_ws('#',
-        (SELECT string_agg(CAST(t AS VARCHAR), chr(10) ORDER BY CAST(t AS VARCHAR)) FROM lots t),
-        (SELECT string_agg(CAST(t AS VARCHAR), chr(10) ORDER BY CAST(t AS VARCHAR)) FROM instruments t),
-        (SELECT string_agg(CAST(t AS VARCHAR), chr(10) ORDER BY CAST(t AS VARCHAR)) FROM sites t),
-        (SELECT string_agg(concat_ws('|', simulator_nominal_c, simulator_window_c, correct_wet_bath_temperature,
-                                     correct_dry_gas_pressure, wet_bath_temperature_coefficient,
-                                     reference_pressure_kpa), chr(10)) FROM standards_parameters),
-        (SELECT string_agg(CAST(t AS VARCHAR), chr(10) ORDER BY CAST(t AS VARCHAR)) FROM standards_compensating t),
-        (SELECT string_agg(CAST(t AS VARCHAR), chr(10) ORDER BY CAST(t AS VARCHAR)) FROM tolerance_rules t),
-        $view_sql)) AS inputs_digest,
-    md5(coalesce((SELECT string_agg(concat_ws('|', instrument_id, event_at, event_type), chr(10)
-                                    ORDER BY instrument_id, event_at, event_type)
-                  FROM service_events
-                  WHERE event_type IN ('calibration', 'sensor_replacement', 'solution_change')), '')) AS events_digest;
+    concat_ws('#',
+        (SELECT count(*) || ':' || coalesce(sum(hash(t)::HUGEINT), 0) FROM lots t),
+        (SELECT count(*) || ':' || coalesce(sum(hash(t)::HUGEINT), 0) FROM instruments t),
+        (SELECT count(*) || ':' || coalesce(sum(hash(t)::HUGEINT), 0) FROM sites t),
+        (SELECT coalesce(sum(hash(simulator_nominal_c, simulator_window_c, correct_wet_bath_temperature,
+                                   correct_dry_gas_pressure, wet_bath_temperature_coefficient,
+                                   reference_pressure_kpa)::HUGEINT), 0) FROM standards_parameters),
+        (SELECT count(*) || ':' || coalesce(sum(hash(t)::HUGEINT), 0) FROM standards_compensating t),
+        (SELECT count(*) || ':' || coalesce(sum(hash(t)::HUGEINT), 0) FROM tolerance_rules t),
+        $view_sql) AS inputs_digest,
+    (SELECT count(*) || ':' || coalesce(sum(hash(instrument_id, event_at, event_type)::HUGEINT), 0)
+     FROM service_events
+     WHERE event_type IN ('calibration', 'sensor_replacement', 'solution_change')) AS events_digest;
