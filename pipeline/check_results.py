@@ -28,6 +28,7 @@ import duckdb
 from pipeline.db import sql_text
 
 VIEW_FILES = ("views/check_results_live", "views/baseline_periods")
+BATCH_CHECKS = 1_000_000  # checks per statement when whole units are recomputed
 
 
 @dataclass(frozen=True)
@@ -83,7 +84,8 @@ def _refresh(con: duckdb.DuckDBPyConnection, started: float) -> RefreshResult:
     if state is None or state[1] != inputs or still_there != stored_rows or top < through:
         mode = "full"
         con.execute("DELETE FROM check_results")
-        rows = con.execute(sql_text("queries/check_results_insert_units").format(unit_filter="TRUE")).fetchone()[0]
+        all_units = [r[0] for r in con.execute("SELECT DISTINCT instrument_id FROM checks ORDER BY 1").fetchall()]
+        rows = _insert_units(con, all_units)
     else:
         if state[2] != events or top > through:
             units = [r[0] for r in con.execute(sql_text("queries/check_results_affected_units"),
@@ -93,8 +95,7 @@ def _refresh(con: duckdb.DuckDBPyConnection, started: float) -> RefreshResult:
             con.execute("CREATE OR REPLACE TEMP TABLE _cr_units AS SELECT unnest($u) AS instrument_id", {"u": units})
             con.execute("DELETE FROM check_results WHERE instrument_id IN (SELECT instrument_id FROM _cr_units)")
             con.execute("DROP TABLE _cr_units")
-            rows += con.execute(sql_text("queries/check_results_insert_units").format(
-                unit_filter=_unit_filter(units))).fetchone()[0]
+            rows += _insert_units(con, units)
         if top > through:
             others = f"NOT ({_unit_filter(units)})" if units else "TRUE"
             rows += con.execute(sql_text("queries/check_results_insert_new").format(unit_filter=others),
@@ -107,3 +108,23 @@ def _refresh(con: duckdb.DuckDBPyConnection, started: float) -> RefreshResult:
     con.execute("INSERT OR REPLACE INTO check_results_state VALUES (1, $t, $i, $e, $at, $m)",
                 {"t": top, "i": inputs, "e": events, "at": datetime.now(UTC).replace(tzinfo=None), "m": mode})
     return RefreshResult(mode, int(rows), len(units), int(top), time.perf_counter() - started)
+
+
+def _insert_units(con: duckdb.DuckDBPyConnection, units: list[str]) -> int:
+    """Insert the rows of whole units, a batch of about BATCH_CHECKS checks at a time, so memory
+    stays bounded (one statement over 10 million checks needed 8 GB for its window)."""
+    if not units:
+        return 0
+    con.execute("CREATE OR REPLACE TEMP TABLE _cr_units AS SELECT unnest($u) AS instrument_id", {"u": units})
+    counts = con.execute("SELECT u.instrument_id, count(c.check_id) FROM _cr_units u "
+                         "LEFT JOIN checks c USING (instrument_id) GROUP BY 1 ORDER BY 1").fetchall()
+    con.execute("DROP TABLE _cr_units")
+    rows, batch, size = 0, [], 0
+    for i, (unit, n) in enumerate(counts):
+        batch.append(unit)
+        size += n
+        if size >= BATCH_CHECKS or i == len(counts) - 1:
+            rows += con.execute(sql_text("queries/check_results_insert_units").format(
+                unit_filter=_unit_filter(batch))).fetchone()[0]
+            batch, size = [], 0
+    return int(rows)

@@ -1,8 +1,8 @@
 -- name: check_results_insert_units
--- Insert the check_results rows of whole units (or, with $all, of every unit) from the view
--- check_results_live, adding checks_since_solution_change (a window over each unit's checks).
--- The refresh (pipeline/check_results.py) formats {unit_filter}: TRUE, or instrument_id IN (...)
--- as a literal list, which DuckDB pushes down to the checks scan.
+-- Insert the check_results rows of whole units from the view check_results_live, adding
+-- checks_since_solution_change (a window over each unit's checks). The refresh
+-- (pipeline/check_results.py) formats {unit_filter}: l.instrument_id IN (...), a literal list of
+-- a batch of units, which DuckDB pushes down to the checks scan.
 INSERT INTO check_results BY NAME
 SELECT l.*,
        CASE WHEN l.standard_kind = 'wet_bath' THEN
