@@ -6,11 +6,19 @@ from the service queue into a unit, and the switch to another unit. A render is 
 when the page title is shown, Streamlit's running indicator and loading skeletons are gone
 and the DOM has been still for a settle window; the time reported is when it became still.
 Targets (issue 7): first render < 2 s, drill-down < 1 s.
+
+The database is the benchmark fleet as a program runs it: a copy of the ingested fleet
+(benchmarks.fleet) after the main job (charts, fleet model, service queue, published snapshot),
+built once into bench-output/dashboard-work.duckdb and reused while the ingested fleet and the
+schema files are unchanged (see analysed_database). Every measurement starts a fresh server,
+so the dashboard's caches are cold; the operating system's file cache is not dropped.
 """
 
 from __future__ import annotations
 
+import json
 import os
+import shutil
 import socket
 import subprocess
 import sys
@@ -43,6 +51,8 @@ def _start(db: Path, port: int) -> subprocess.Popen:
                              "--db", str(db), "--port", str(port)], cwd=ROOT, stdout=subprocess.DEVNULL,
                             stderr=subprocess.DEVNULL, start_new_session=True)
     for _ in range(300):
+        if proc.poll() is not None:
+            raise RuntimeError(f"dashboard server exited with code {proc.returncode}")
         try:
             with urllib.request.urlopen(f"http://127.0.0.1:{port}/_stcore/health", timeout=1):
                 return proc
@@ -70,41 +80,63 @@ def wait_rendered(page, title: str, started: float, timeout: float = 300.0) -> f
     raise TimeoutError(f"page {title!r} did not finish within {timeout} s")
 
 
+def _stop(proc: subprocess.Popen, port: int) -> None:
+    """Stop the server's process group and wait until its port is free again."""
+    os.killpg(proc.pid, 15)
+    proc.wait(timeout=30)
+    for _ in range(300):
+        with socket.socket() as s:
+            if s.connect_ex(("127.0.0.1", port)) != 0:
+                return
+        time.sleep(0.1)
+    raise RuntimeError(f"port {port} still in use after stopping the server")
+
+
 def measure(db: Path) -> dict[str, float]:
+    """Seconds per render: cold (a fresh server per page), warm (second visit), drill-down.
+
+    cold_<page>: a new server process whose caches are empty (no visitor yet) and the page
+    opened by its address; the browser keeps Streamlit's static frontend in its HTTP cache
+    (same origin, the server restarts on the same port), as a returning user's browser does.
+    first_visit_<page> / warm_<page>: one server, moving between pages with the sidebar, first
+    and second time. drilldown_queue_to_unit: on that server, from the queue into a unit not
+    opened before; unit_by_link: the address of yet another unit.
+    """
     from playwright.sync_api import sync_playwright
     port = _free_port()
-    proc = _start(db, port)
     base = f"http://127.0.0.1:{port}"
     out: dict[str, float] = {}
-    try:
-        with sync_playwright() as p:
-            browser = p.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS, headless=True)
-            # the very first visitor after the server started: Python modules load, the snapshot's
-            # fleet-wide queries run (the dashboard prewarms them in the background from here on)
-            warm = browser.new_page()
-            t = time.perf_counter()
-            warm.goto(f"{base}/")
-            out["first_visitor_fleet_cold_s"] = wait_rendered(warm, "Fleet overview", t, timeout=600)
-            warm.close()
-            # full loads in a fresh browser context (downloads the Streamlit frontend too)
-            for path in ("queue", "unit"):
-                context = browser.new_context(viewport={"width": 1400, "height": 1000})
+    with sync_playwright() as p:
+        browser = p.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS, headless=True)
+        context = browser.new_context(viewport={"width": 1400, "height": 1000})
+        proc = _start(db, port)
+        try:  # fill the browser's cache with the frontend (this server is not measured)
+            page = context.new_page()
+            page.goto(f"{base}/digest")
+            wait_rendered(page, "Digest", time.perf_counter(), timeout=600)
+            page.close()
+        finally:
+            _stop(proc, port)
+        for path, title in PAGES.items():
+            proc = _start(db, port)
+            try:
                 page = context.new_page()
                 t = time.perf_counter()
                 page.goto(f"{base}/{path}")
-                out[f"url_load_{path or 'fleet'}_s"] = wait_rendered(page, PAGES[path], t)
-                context.close()
-            # navigation inside the app, as a user moves between pages: first visit, then again
-            page = browser.new_page(viewport={"width": 1400, "height": 1000})
+                out[f"cold_{path or 'fleet'}_s"] = wait_rendered(page, title, t, timeout=600)
+                page.close()
+            finally:
+                _stop(proc, port)
+        proc = _start(db, port)
+        try:
+            page = context.new_page()
             page.goto(f"{base}/digest")
-            wait_rendered(page, "Digest", time.perf_counter())
-            for rnd in ("first", "second"):
+            wait_rendered(page, "Digest", time.perf_counter(), timeout=600)
+            for rnd in ("first_visit", "warm"):
                 for path, title in PAGES.items():
                     t = time.perf_counter()
                     page.locator("[data-testid='stSidebarNav'] a", has_text=title).first.click()
-                    out[f"{rnd}_render_{path or 'fleet'}_s"] = wait_rendered(page, title, t)
-            page.close()
-            page = browser.new_page(viewport={"width": 1400, "height": 1000})
+                    out[f"{rnd}_{path or 'fleet'}_s"] = wait_rendered(page, title, t)
             page.goto(f"{base}/queue")
             wait_rendered(page, "Service queue", time.perf_counter())
             button = page.get_by_role("button", name="Open unit page")
@@ -118,12 +150,59 @@ def measure(db: Path) -> dict[str, float]:
                 out["drilldown_queue_to_unit_s"] = wait_rendered(page, "Unit", t)
             t = time.perf_counter()
             page.goto(f"{base}/unit?unit={_another_unit(db)}")
-            out["unit_by_link_cold_s"] = wait_rendered(page, "Unit", t)
-            browser.close()
-    finally:
-        os.killpg(proc.pid, 15)
-        proc.wait(timeout=30)
+            out["unit_by_link_s"] = wait_rendered(page, "Unit", t)
+        finally:
+            _stop(proc, port)
+        browser.close()
     return out
+
+
+def _schema_files() -> list[str]:
+    return sorted(p.name for p in (ROOT / "sql" / "schema").glob("*.sql"))
+
+
+def analysed_database() -> Path:
+    """The benchmark fleet after the main job, built once as a copy beside the ingested fleet.
+
+    The ingested fleet (benchmarks.fleet.benchmark_database) is never modified. The copy is
+    rebuilt when the ingested fleet changes; when only schema files were added it is migrated
+    and the main job runs again on it (incremental charts, a new fit and queue), as a program
+    does after an upgrade. A sidecar `<copy>.built` records what the copy was made from.
+    """
+    from benchmarks.fleet import benchmark_database
+    from pipeline.db import open_database, snapshot_path
+    from pipeline.main_job import run_main_job
+    from pipeline.settings import Settings
+    from pipeline.standards import sync_standards_settings
+
+    src = Path(benchmark_database())
+    work = src.with_name("dashboard-work.duckdb")
+    built = work.with_name(work.name + ".built")
+    source = {"path": str(src), "size": src.stat().st_size, "mtime_ns": src.stat().st_mtime_ns}
+    want = {"source": source, "schema": _schema_files()}
+    have = json.loads(built.read_text(encoding="utf-8")) if built.exists() else None
+    if have == want and work.exists() and snapshot_path(work).exists():
+        return work
+    os.environ.setdefault("BREATHFLEET_OPERATOR_KEY", "benchmark-key")
+    if have is None or have.get("source") != source or not work.exists():
+        built.unlink(missing_ok=True)
+        for p in (work, work.with_name(work.name + ".wal"), snapshot_path(work)):
+            p.unlink(missing_ok=True)
+        print(f"building {work.name}: copy of {src.name}, then the main job (several minutes)", flush=True)
+        shutil.copyfile(src, work)
+    else:
+        print(f"updating {work.name}: new schema files, main job again", flush=True)
+    settings = Settings()
+    con = open_database(work)  # migrates an older build (check_results becomes a table)
+    try:
+        sync_standards_settings(con, settings)  # fills check_results
+        summary = run_main_job(con, settings, work)  # charts, model, queue, publishes the snapshot
+    finally:
+        con.close()
+    for line in summary.lines():
+        print(line, flush=True)
+    built.write_text(json.dumps(want), encoding="utf-8")
+    return work
 
 
 def _another_unit(db: Path) -> str:
@@ -140,17 +219,17 @@ def _another_unit(db: Path) -> str:
 
 def main() -> None:
     try:
-        from benchmarks.fleet import benchmark_database
+        import benchmarks.fleet  # noqa: F401
     except ImportError:
         print("skipped: benchmarks/fleet.py (the benchmark fleet) is not available")
         return
     if not Path(CHROMIUM).exists():
         print("skipped: /usr/bin/chromium is not installed")
         return
-    db = Path(benchmark_database())
+    db = analysed_database()
     figures = measure(db)
     for name, value in figures.items():
-        target = 1.0 if name.startswith("drilldown") else 2.0 if name.startswith("first_render") else None
+        target = 1.0 if name.startswith("drilldown") else 2.0 if name.startswith("cold_") else None
         flag = "" if target is None else ("  ok" if value < target else f"  over the {target:g} s target")
         print(f"{name:<36} {value:7.2f}{flag}")
 

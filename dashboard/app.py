@@ -26,7 +26,4 @@ PAGES = [
     st.Page("views/digest.py", title="Digest", url_path="digest"),
 ]
 
-from dashboard import loaders  # noqa: E402
-
-loaders.prewarm()  # heavy fleet-wide queries start in the background as soon as a snapshot is new
 st.navigation(PAGES).run()

@@ -55,6 +55,16 @@ def footer(rng: dict | None) -> None:
     st.caption(CAUTIONS)
 
 
+def summary_note(rng: dict | None) -> dict | None:
+    """Say when the fleet summaries (written by the main job) lag the stored checks; returns their state."""
+    state = loaders.summary_state()
+    if state is not None and rng is not None and int(state["n_checks"]) != int(rng["n_checks"]):
+        st.caption(f"Fleet summaries on this page are as of the last analysis (data up to "
+                   f"{pd.Timestamp(state['last_check_at']):%Y-%m-%d %H:%M} UTC, {int(state['n_checks']):,} checks); "
+                   "checks stored since then enter at the next `breathfleet run`.")
+    return state
+
+
 def not_computed(what: str, how: str) -> None:
     """The message shown where a table has not been computed yet (or holds no rows)."""
     st.info(f"{what}: not computed yet. {how}")

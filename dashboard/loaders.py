@@ -8,7 +8,9 @@ is keyed on the snapshot's path and modification time (`data_token`), so when a 
 publishes, the next rerun reopens the snapshot (see SnapshotReader) and every cached
 query runs again; results of the old snapshot age out of the caches.
 
-Queries are the files sql/queries/dashboard_*.sql. Each names the tables it needs on a
+Queries are the files sql/queries/dashboard_*.sql. None scans the ten million rows of
+check_results per page view: fleet-wide figures come from the summary_* tables the main job
+writes (pipeline/dashboard_summary.py), unit pages filter on instrument_id first. Each names the tables it needs on a
 `-- requires:` line; when one is missing (its feature has not run yet) the loader returns
 None and the page says "not computed yet" instead of failing.
 """
@@ -198,10 +200,19 @@ def data_range() -> dict[str, Any] | None:
 UNIT_STATES = ("in control", "signal", "out of tolerance", "not charted")
 
 
+def summary_state() -> dict[str, Any] | None:
+    """What the fleet summaries were computed from (checks through, data range, when); None
+    before the main job has written them (pipeline.dashboard_summary)."""
+    df = load("dashboard_summary_state")
+    return None if df is None or df.empty else df.iloc[0].to_dict()
+
+
 def unit_states(signal_days: int = 7) -> pd.DataFrame | None:
     """One row per unit with its state: out of tolerance (latest check at a level failed),
     signal (a control-chart signal in the last `signal_days` days), in control, or not charted
-    (no chart results yet). None when the checks have not been stored yet."""
+    (no chart results yet). None before the main job has written the fleet summary."""
+    if summary_state() is None:
+        return None
     tol = load("dashboard_unit_tolerance")
     if tol is None:
         return None
@@ -220,54 +231,3 @@ def state_counts(states: pd.DataFrame, by: list[str]) -> pd.DataFrame:
     """Counts of units per state, grouped by `by` (e.g. region, or region and site)."""
     counts = states.groupby(by + ["state"], dropna=False).size().rename("units").reset_index()
     return counts
-
-
-def _default_queries(token: DataToken) -> list[tuple[str, dict[str, Any]]]:
-    """The fleet-wide queries each page runs on its first render, with the pages' default parameters."""
-    queries: list[tuple[str, dict[str, Any]]] = [
-        # the fleet page's queries first: a visitor arriving meanwhile waits for these (Streamlit
-        # computes a cached value once per key) instead of computing them a second time
-        ("dashboard_data_range", {}), ("dashboard_unit_tolerance", {}),
-        ("dashboard_unit_signal_counts", {"days": 7}), ("dashboard_signals_recent", {"days": 7}),
-        ("dashboard_fleet_trend", {}), ("dashboard_queue", {}), ("dashboard_unit_list", {}), ("dashboard_levels", {}),
-        ("dashboard_lot_usage", {}), ("dashboard_lot_effects", {}), ("dashboard_lot_acceptance", {}),
-        ("dashboard_ingest_ledger", {}), ("dashboard_quarantine_reasons", {}),
-        ("dashboard_silent_units", {"days": settings().queue.silence_days}),
-        ("dashboard_verdict_disagreements", {}),
-    ]
-    levels = _query(token, "dashboard_levels", ())
-    if levels is not None and not levels.empty:
-        level = levels["level"].tolist()[0]
-        queries += [("dashboard_funnel_units", {"level": level, "days": 90, "max_points": MAX_POINTS,
-                                                "overdispersed": True}),
-                    ("dashboard_funnel_limits", {"level": level, "days": 90, "overdispersed": True})]
-    return queries
-
-
-def _prewarm(token: DataToken) -> None:
-    for name, params in _default_queries(token):
-        if data_token() != token:  # a newer snapshot arrived: its own prewarm takes over
-            return
-        try:
-            _query(token, name, tuple(sorted(params.items())))
-        except Exception:  # noqa: BLE001 - a page shows the error when it runs the query itself
-            continue
-
-
-@st.cache_resource(show_spinner=False)
-def _prewarmed() -> dict[str, Any]:
-    return {"lock": threading.Lock(), "tokens": set()}
-
-
-def prewarm() -> None:
-    """Run the fleet-wide queries in a background thread once per snapshot, so the first visitor
-    after a publish finds them cached. Called by the frame on every rerun; cheap when done."""
-    token = data_token()
-    if token is None or not snapshot_path(token.path).exists():
-        return
-    state = _prewarmed()
-    with state["lock"]:
-        if token in state["tokens"]:
-            return
-        state["tokens"].add(token)
-    threading.Thread(target=_prewarm, args=(token,), name="breathfleet-prewarm", daemon=True).start()

@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 
 from pipeline.check_results import refresh_check_results
+from pipeline.dashboard_summary import write_dashboard_summary
 from pipeline.db import migrate, publish_snapshot
 
 CONTRACT_TABLES = {
@@ -145,6 +146,7 @@ def build_fleet_db(path: Path, n_units: int = 24, days: int = 180, seed: int = 7
     _fill_charts(con, checks, units)
     _fill_model(con, checks, units, lots)
     _fill_queue(con, units)
+    write_dashboard_summary(con)  # the main job's last step before it publishes
     publish_snapshot(con, path)
     con.close()
     return path

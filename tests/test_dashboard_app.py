@@ -285,3 +285,68 @@ def test_cli_names_a_missing_database(tmp_path):
     result = CliRunner().invoke(main, ["dashboard", "--db", str(tmp_path / "none.duckdb")])
     assert result.exit_code == 1
     assert "none.duckdb: database file does not exist; ingest data first" in result.output
+
+
+def test_fleet_summaries_equal_the_aggregates_over_every_check(fleet_db):
+    """The summary_* tables (pipeline.dashboard_summary, written by the main job) hold what the
+    pages used to compute over check_results on every view."""
+    import duckdb
+    con = duckdb.connect(str(fleet_db), read_only=True)
+    try:
+        def rows(sql):
+            return con.execute(sql).fetchall()
+        # common practice: a unit's state follows the verdict of its latest check at each level
+        assert rows("SELECT instrument_id, level, n_checks, last_verdict FROM summary_unit_levels ORDER BY 1, 2") == rows(
+            "SELECT instrument_id, level, count(*), arg_max(verdict, (measured_at, check_id)) FROM check_results "
+            "GROUP BY ALL ORDER BY 1, 2")
+        assert rows("SELECT instrument_id, sum(unit_pass_ours_fail + unit_fail_ours_pass) AS n FROM summary_unit_levels "
+                    "GROUP BY 1 HAVING n > 0 ORDER BY 1") == rows(
+            "SELECT instrument_id, count(*) FROM check_results WHERE outcome IN ('pass', 'fail') "
+            "AND verdict IN ('pass', 'fail') AND outcome <> verdict GROUP BY 1 ORDER BY 1")
+        assert rows("SELECT week, standard_kind, n_checks, round(p90_pct, 9) FROM summary_weeks ORDER BY 1, 2") == rows(
+            "SELECT date_trunc('week', measured_at), coalesce(standard_kind, '(unknown)'), count(*), "
+            "round(quantile_cont(relative_error, 0.9) * 100, 9) FROM check_results WHERE relative_error IS NOT NULL "
+            "GROUP BY ALL ORDER BY 1, 2")
+        assert rows("SELECT lot_id, n_checks, n_units FROM summary_lots ORDER BY 1") == rows(
+            "SELECT lot_id, count(*), count(DISTINCT instrument_id) FROM checks GROUP BY 1 ORDER BY 1")
+        # Spiegelhalter (2005) Stat Med 24:1185, section 3: each unit's n, mean and within-unit variance
+        # over the window ending at the latest check
+        assert rows("SELECT instrument_id, n_checks, round(mean_pct, 9), round(var_pct, 9) FROM summary_funnel "
+                    "WHERE window_days = 30 AND level = 0.08 ORDER BY 1") == rows(
+            "SELECT instrument_id, count(*), round(avg(relative_error * 100), 9), round(var_samp(relative_error * 100), 9) "
+            "FROM check_results WHERE level = 0.08 AND relative_error IS NOT NULL "
+            "AND measured_at >= (SELECT max(measured_at) FROM checks) - INTERVAL 30 DAY GROUP BY 1 ORDER BY 1")
+        state = rows("SELECT checks_through, n_checks FROM summary_state")
+        assert state == rows("SELECT max(check_id), count(*) FROM checks")
+    finally:
+        con.close()
+
+
+def test_pages_say_when_summaries_lag_the_checks(tmp_path, monkeypatch):
+    import duckdb
+
+    from pipeline.db import publish_snapshot
+    db = build_fleet_db(tmp_path / "lag.duckdb", n_units=3, days=20)
+    con = duckdb.connect(str(db))
+    con.execute("INSERT INTO checks SELECT check_id + 100000, instrument_id, measured_at + INTERVAL 1 DAY, lot_id, "
+                "check_type, target, measured, units, simulator_temp_c, pressure_kpa, site_id, operator_id, "
+                "outcome, file_id, line FROM checks WHERE check_id < 5")
+    publish_snapshot(con, db)
+    con.close()
+    at = run_page(monkeypatch, db, "fleet")
+    assert not at.exception
+    assert any("as of the last analysis" in c.value for c in at.caption)
+
+
+def test_fleet_page_asks_for_the_main_job_before_its_summary_exists(tmp_path, monkeypatch):
+    import duckdb
+
+    from pipeline.db import publish_snapshot
+    db = build_fleet_db(tmp_path / "nosummary.duckdb", n_units=3, days=20)
+    con = duckdb.connect(str(db))
+    con.execute("DELETE FROM summary_state")
+    publish_snapshot(con, db)
+    con.close()
+    at = run_page(monkeypatch, db, "fleet")
+    assert not at.exception
+    assert any("breathfleet run" in i.value for i in at.info)

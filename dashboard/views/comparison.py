@@ -8,16 +8,18 @@ Statistics in Medicine 24(8):1185-1202.
 import streamlit as st
 
 from dashboard import figures, frame, loaders
+from pipeline.dashboard_summary import FUNNEL_WINDOW_DAYS
 
-frame.header("Comparison", "Which units differ from the fleet by more than their number of checks explains?")
+rng = frame.header("Comparison", "Which units differ from the fleet by more than their number of checks explains?")
+frame.summary_note(rng)
 levels = loaders.load("dashboard_levels")
 if frame.missing(levels):
-    frame.not_computed("Funnel plot", "Ingest checks first.")
+    frame.not_computed("Funnel plot", "Ingest checks and analyse them (`breathfleet run`) first.")
     st.stop()
 
 c1, c2, c3 = st.columns([2, 2, 1])
 level = c1.selectbox("Level (g/210L)", levels["level"].tolist(), format_func=lambda v: f"{v:.3f}", key="cmp_level")
-days = c2.select_slider("Window (days of data)", [30, 90, 180, 365, 730], value=90, key="cmp_days")
+days = c2.select_slider("Window (days of data)", list(FUNNEL_WINDOW_DAYS), value=90, key="cmp_days")
 overdispersed = c3.toggle("Allow for unit-to-unit spread", value=True, key="cmp_overdispersed",
                           help="Adds the between-unit variance beyond chance (tau²) to the limits, "
                                "as Spiegelhalter (2005) section 6.2 advises when most units fall outside.")

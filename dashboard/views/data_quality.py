@@ -5,7 +5,7 @@ import streamlit as st
 
 from dashboard import figures, frame, loaders
 
-frame.header("Data quality", "Can the data itself be trusted?")
+rng = frame.header("Data quality", "Can the data itself be trusted?")
 
 st.subheader("Ingest ledger")
 ledger = loaders.load("dashboard_ingest_ledger")
@@ -47,6 +47,7 @@ else:
     st.dataframe(silent, hide_index=True, width="stretch")
 
 st.subheader("Verdict disagreements")
+frame.summary_note(rng)
 disagree = loaders.load("dashboard_verdict_disagreements")
 if disagree is None:
     frame.not_computed("Verdict disagreements", "Ingest checks first.")

@@ -5,10 +5,12 @@ import streamlit as st
 
 from dashboard import figures, frame, loaders
 
-frame.header("Fleet overview", "What needs attention this week, and where?")
+rng = frame.header("Fleet overview", "What needs attention this week, and where?")
+frame.summary_note(rng)
 states = loaders.unit_states(signal_days=7)
 if frame.missing(states):
-    frame.not_computed("Unit states", "Ingest instruments and checks first (`breathfleet ingest`).")
+    frame.not_computed("Unit states", "Ingest instruments and checks (`breathfleet ingest`), then analyse them "
+                       "(`breathfleet run`), which writes the fleet summary.")
     st.stop()
 
 counts = states["state"].value_counts()

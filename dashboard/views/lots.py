@@ -5,7 +5,8 @@ import streamlit as st
 
 from dashboard import figures, frame, loaders
 
-frame.header("Lots", "Is a reference-standard lot to blame rather than the units?")
+rng = frame.header("Lots", "Is a reference-standard lot to blame rather than the units?")
+frame.summary_note(rng)
 usage = loaders.load("dashboard_lot_usage")
 if frame.missing(usage):
     frame.not_computed("Lots", "Ingest the lots reference file first.")

@@ -3,17 +3,13 @@
 -- fleet mean relative error (percent) and its 95 % and 99.8 % funnel limits
 -- target +/- z * sqrt(sd^2 / n + tau^2) at level $level over the last $days days; tau^2 (the
 -- unit-to-unit variance beyond chance) only with $overdispersed; also the number of units and tau.
--- Source: Spiegelhalter (2005), Statistics in Medicine 24:1185-1202, sections 3 and 6.2.
--- requires: check_results, checks
-WITH recent AS (
-    SELECT instrument_id, relative_error * 100 AS re_pct
-    FROM check_results
-    WHERE level = $level AND relative_error IS NOT NULL
-      AND measured_at >= (SELECT max(measured_at) FROM checks) - to_days(CAST($days AS INTEGER))
-),
-per_unit AS (
-    SELECT instrument_id, count(*) AS n_checks, avg(re_pct) AS mean_pct, var_samp(re_pct) AS var_pct
-    FROM recent GROUP BY instrument_id
+-- Per-unit n, mean and variance come from summary_funnel (the main job, windows ending at the
+-- latest check). Source: Spiegelhalter (2005), Statistics in Medicine 24:1185-1202, sections 3 and 6.2.
+-- requires: summary_funnel
+WITH per_unit AS (
+    SELECT instrument_id, n_checks, mean_pct, var_pct
+    FROM summary_funnel
+    WHERE window_days = $days AND level = $level
 ),
 pooled AS (
     SELECT sum(n_checks * mean_pct) / sum(n_checks) AS target_pct,

@@ -3,18 +3,14 @@
 -- its number of checks and its standardised distance z from the fleet mean, most extreme first
 -- ($max_points rows at most). With $overdispersed, the unit-to-unit variance tau^2 beyond chance is
 -- added to each unit's sampling variance (additive random-effects adjustment, moment estimate).
--- Source: Spiegelhalter (2005), Funnel plots for comparing institutional performance,
+-- Per-unit n, mean and variance come from summary_funnel (the main job, windows ending at the
+-- latest check). Source: Spiegelhalter (2005), Funnel plots for comparing institutional performance,
 -- Statistics in Medicine 24:1185-1202, sections 3 and 6.2.
--- requires: check_results, checks, instruments
-WITH recent AS (
-    SELECT instrument_id, relative_error * 100 AS re_pct
-    FROM check_results
-    WHERE level = $level AND relative_error IS NOT NULL
-      AND measured_at >= (SELECT max(measured_at) FROM checks) - to_days(CAST($days AS INTEGER))
-),
-per_unit AS (
-    SELECT instrument_id, count(*) AS n_checks, avg(re_pct) AS mean_pct, var_samp(re_pct) AS var_pct
-    FROM recent GROUP BY instrument_id
+-- requires: summary_funnel, instruments
+WITH per_unit AS (
+    SELECT instrument_id, n_checks, mean_pct, var_pct
+    FROM summary_funnel
+    WHERE window_days = $days AND level = $level
 ),
 pooled AS (
     SELECT sum(n_checks * mean_pct) / sum(n_checks) AS target_pct,

@@ -1,13 +1,14 @@
 -- name: dashboard_verdict_disagreements
 -- One row: a unit whose own pass/fail outcome disagrees with breathfleet's verdict, with counts
--- in each direction and the latest such check (top 200 units).
--- requires: check_results
-SELECT instrument_id,
-       count(*) FILTER (WHERE outcome = 'pass' AND verdict = 'fail') AS unit_pass_ours_fail,
-       count(*) FILTER (WHERE outcome = 'fail' AND verdict = 'pass') AS unit_fail_ours_pass,
-       count(*) AS n_disagreements, max(measured_at) AS last_at
-FROM check_results
-WHERE outcome IN ('pass', 'fail') AND verdict IN ('pass', 'fail') AND outcome <> verdict
+-- in each direction and the latest such check (top 200 units; summary_unit_levels, as of the
+-- last main job).
+-- requires: summary_unit_levels
+SELECT instrument_id, sum(unit_pass_ours_fail) AS unit_pass_ours_fail,
+       sum(unit_fail_ours_pass) AS unit_fail_ours_pass,
+       sum(unit_pass_ours_fail + unit_fail_ours_pass) AS n_disagreements,
+       max(last_disagreement_at) AS last_at
+FROM summary_unit_levels
 GROUP BY instrument_id
+HAVING sum(unit_pass_ours_fail + unit_fail_ours_pass) > 0
 ORDER BY n_disagreements DESC, instrument_id
 LIMIT 200;
