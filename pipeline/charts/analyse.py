@@ -79,7 +79,9 @@ def pooled_lookup(frame: pd.DataFrame, pooled: pd.DataFrame) -> np.ndarray:
     pool_key = ["technology", "standard_kind", "level"]
     if frame.empty:
         return np.empty(0)
-    code = frame.groupby(pool_key, observed=True, sort=False, dropna=False).ngroup().to_numpy()
+    parts = [pd.factorize(frame[c], use_na_sentinel=False)[0] for c in pool_key]
+    code = (parts[0].astype(np.int64) * (parts[1].max() + 1) + parts[1]) * (parts[2].max() + 1) + parts[2]
+    code = pd.factorize(code)[0]
     first = np.unique(code, return_index=True)[1]
     keys = frame[pool_key].iloc[first].astype({"technology": str, "standard_kind": str})
     sigma = keys.merge(pooled, how="left", on=pool_key)["sigma"].to_numpy(dtype=float)
@@ -144,8 +146,11 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     est = own_estimates(x, starts, (position - 1).astype(int), n_min)
     new_own = est[np.isnan(center[np.flatnonzero(starts)][est["group"].to_numpy()])] if len(est) else est
     if len(new_own):
-        fill_c = pd.Series(new_own["center"].to_numpy(), index=new_own["group"].to_numpy()).reindex(gid).to_numpy()
-        fill_s = pd.Series(new_own["sigma"].to_numpy(), index=new_own["group"].to_numpy()).reindex(gid).to_numpy()
+        def per_row(values):  # group values spread to the group's rows (NaN for other groups)
+            out = np.full(int(gid[-1]) + 1, np.nan)
+            out[new_own["group"].to_numpy()] = values
+            return out[gid]
+        fill_c, fill_s = per_row(new_own["center"].to_numpy()), per_row(new_own["sigma"].to_numpy())
         center = np.where(np.isnan(center), fill_c, center)
         sigma = np.where(np.isnan(sigma), fill_s, sigma)
     use_own = (position > n_min) & np.isfinite(sigma) & (sigma > 0)
@@ -282,8 +287,10 @@ def read_chart_input(con: duckdb.DuckDBPyConnection, with_rebaselines: bool, thr
     con.execute("CREATE OR REPLACE TEMP TABLE _bf_recharge AS SELECT unnest($u::VARCHAR[]) AS instrument_id",
                 {"u": sorted(recharge)})
     try:
-        raw = con.execute(sql_text("queries/charts_input"),
-                          {"with_rebaselines": with_rebaselines, "through": through}).fetchnumpy()
+        offset = "\n".join(line for line in sql_text("queries/charts_segment_offset").splitlines()
+                           if not line.startswith("--")) if with_rebaselines else "0"
+        raw = con.execute(sql_text("queries/charts_input").format(segment_offset=offset),
+                          {"through": through}).fetchnumpy()
         names = {t: [r[0] for r in con.execute(f"SELECT {c} FROM {t} ORDER BY {o}").fetchall()]
                  for t, c, o in (("_bf_units", "instrument_id", "unit_code"), ("_bf_technologies", "name", "code"),
                                  ("_bf_kinds", "name", "code"))}
@@ -405,10 +412,16 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
         # Run length of each signal: checks since the previous signal of the same chart, rule and
         # side in this run (or since the segment began), the in-control run length it is tested on.
         sig["position"] = sig["position"].fillna(1).astype(np.int64)
-        order = sig.sort_values(["instrument_id", "level", "chart", "rule", "direction", "position"], kind="stable")
-        prev = order.groupby(["instrument_id", "level", "chart", "rule", "direction"], observed=True)["position"].shift()
-        run = np.where(prev.isna() | (prev >= order["position"]), order["position"], order["position"] - prev)
-        sig["position"] = pd.Series(run, index=order.index).reindex(sig.index).astype(np.int64)
+        position = sig["position"].to_numpy()
+        series = [pd.factorize(sig[c], sort=True)[0] for c in ("instrument_id", "level", "chart", "rule", "direction")]
+        order = np.lexsort([position] + series[::-1])
+        same = np.zeros(len(order), dtype=bool)
+        same[1:] = np.logical_and.reduce([c[order][1:] == c[order][:-1] for c in series])
+        pos_o = position[order]
+        prev = np.where(same, np.r_[0, pos_o[:-1]], 0)
+        run = np.empty(len(order), dtype=np.int64)
+        run[order] = np.where(~same | (prev >= pos_o), pos_o, pos_o - prev)
+        sig["position"] = run
         sig["p_value"] = signal_p_values(sig, k=params["cusum"]["k"], h=params["cusum"]["h"],
                                          lam=params["ewma"]["lam"], L=params["ewma"]["L"])
         fs = fleet_significance(sig["p_value"].to_numpy(), cs.fleet_fdr_q)

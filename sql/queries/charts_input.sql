@@ -1,7 +1,8 @@
 -- name: charts_input
 -- One row: a check to chart (control, daily or verification; not aborted or invalid) not yet in
--- chart_points, with its chart segment: baseline period x 1000 + re-baselines since the period began
--- ($with_rebaselines FALSE skips that count when no re-baseline was ever recorded).
+-- chart_points, with its chart segment: baseline period x 1000 + re-baselines since the period began.
+-- pipeline/charts/analyse.py fills in the segment offset: the query charts_segment_offset.sql when a
+-- re-baseline was ever recorded, else 0 (DuckDB would join 10 million rows for an empty count).
 -- Names come back as integer codes into the small temp tables _bf_units, _bf_technologies and
 -- _bf_kinds that pipeline/charts/analyse.py creates (millions of strings are the slow part of a read).
 -- $through: checks with a check_id at or below it are charted already, except those of the units
@@ -9,12 +10,7 @@
 SELECT r.check_id, u.unit_code, r.level, r.measured_at,
        CASE r.check_type WHEN 'control' THEN 0 WHEN 'daily' THEN 1 ELSE 2 END AS check_type_code,
        r.relative_error, r.expected, r.measured, t.code AS technology_code, k.code AS kind_code,
-       r.baseline_period * 1000 + CASE WHEN $with_rebaselines THEN
-           (SELECT count(*) FROM chart_rebaselines rb
-            WHERE rb.instrument_id = r.instrument_id
-              AND rb.rebaseline_at <= r.measured_at
-              AND rb.rebaseline_at > coalesce(r.baseline_started_at, TIMESTAMP '1900-01-01')) ELSE 0 END
-           AS baseline_period
+       r.baseline_period * 1000 + {segment_offset} AS baseline_period
 FROM check_results r
 JOIN _bf_units u ON u.instrument_id = r.instrument_id
 JOIN _bf_technologies t ON t.name = coalesce(r.technology, 'unknown')

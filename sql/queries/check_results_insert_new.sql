@@ -1,7 +1,7 @@
 -- name: check_results_insert_new
 -- Insert the check_results rows of checks newer than $through (by check_id) for units whose new
 -- checks all come after their stored ones: checks_since_solution_change continues from the
--- stored rows of the same unit and solution change. The refresh formats {unit_filter}: TRUE, or
+-- stored rows of the same unit and solution change. The refresh fills in the unit filter: TRUE, or
 -- NOT (instrument_id IN (...)) for units it has just recomputed whole.
 INSERT INTO check_results BY NAME
 WITH fresh AS (

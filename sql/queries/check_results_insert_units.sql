@@ -1,7 +1,7 @@
 -- name: check_results_insert_units
 -- Insert the check_results rows of whole units from the view check_results_live, adding
 -- checks_since_solution_change (a window over each unit's checks). The refresh
--- (pipeline/check_results.py) formats {unit_filter}: l.instrument_id IN (...), a literal list of
+-- (pipeline/check_results.py) fills in the unit filter: l.instrument_id IN (...), a literal list of
 -- a batch of units, which DuckDB pushes down to the checks scan.
 INSERT INTO check_results BY NAME
 SELECT l.*,
