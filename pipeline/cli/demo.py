@@ -4,9 +4,8 @@ from __future__ import annotations
 
 import click
 
-from pipeline.db import open_database
+from pipeline.cli.run import run_and_report
 from pipeline.demo_job import run_demo_job
-from pipeline.main_job import run_main_job
 
 
 @click.command("demo", epilog="Example: breathfleet demo --out build/demo --db build/demo.duckdb --instruments 300 --months 18")
@@ -26,13 +25,7 @@ def command(ctx: click.Context, out_dir, db_path, instruments, months, seed, das
     s = run_demo_job(out_dir, db_path, settings, instruments, months, seed)
     click.echo(f"Ingested {s.files} files: read {s.rows_read:,}, stored {s.rows_stored:,}, "
                f"duplicate {s.rows_duplicate:,}, quarantined {s.rows_quarantined:,} into {s.db_path}")
-    con = open_database(db_path)
-    try:
-        job = run_main_job(con, settings, db_path)
-    finally:
-        con.close()
-    for line in job.lines():
-        click.echo(line)
+    run_and_report(settings, db_path)
     if dashboard:
         from pipeline.cli.dashboard import command as dashboard_command
         ctx.invoke(dashboard_command, db_path=db_path, port=port)

@@ -18,6 +18,11 @@ def command(settings, db_path: str) -> None:
     """Chart every new check, fit the fleet model, rank the service queue and publish the snapshot."""
     if not Path(db_path).exists():
         raise InputError("database file does not exist; ingest data first", file=db_path)
+    run_and_report(settings, db_path)
+
+
+def run_and_report(settings, db_path: str) -> None:
+    """Open the database, run the main job, print its summary lines (also used by `demo`)."""
     con = open_database(db_path)
     try:
         job = run_main_job(con, settings, db_path)
