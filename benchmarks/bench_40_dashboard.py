@@ -33,7 +33,7 @@ PAGES = {"": "Fleet overview", "queue": "Service queue", "unit": "Unit", "compar
          "lots": "Lots", "data_quality": "Data quality", "digest": "Digest"}
 SETTLE_S = 0.8
 BUSY_JS = """(title) => {
-  const h = Array.from(document.querySelectorAll('h1')).some(e => e.innerText.trim() === title);
+  const h = Array.from(document.querySelectorAll("h1")).some(e => e.textContent.trim() === title);
   const busy = document.querySelector('[data-testid="stStatusWidgetRunningIcon"], [data-testid="stSkeleton"]');
   return [h && !busy, document.querySelectorAll('.vega-embed canvas, .vega-embed svg, [data-testid]').length];
 }"""

@@ -125,16 +125,52 @@ def relative_error_chart(checks: pd.DataFrame, tolerance_pct: float, events: pd.
         width=WIDTH, height=240, title="Checks: relative error against tolerance")
 
 
+LINE_BUCKETS = 400  # a line chart draws at most 2 points per bucket: about one per pixel column
+
+
+def thin_line(data: pd.DataFrame, value: str, buckets: int = LINE_BUCKETS, keep: list[str] | None = None) -> pd.DataFrame:
+    """Min-max decimation of a time series for drawing: in each of `buckets` equal spans of rows (in
+    time order), keep the rows with the lowest and highest `value`, the first and last row, and every
+    row where a column in `keep` is true (e.g. beyond a limit). A line through these rows covers the
+    same pixels as one through every row, with a fraction of the marks for the browser to draw.
+    Source: common practice in plotting dense time series (min/max per pixel column)."""
+    if len(data) <= 2 * buckets:
+        return data
+    data = data.sort_values("measured_at").reset_index(drop=True)
+    bucket = (data.index.to_numpy() * buckets) // len(data)
+    series = data[value].fillna(0.0)
+    grouped = series.groupby(bucket)
+    rows = set(grouped.idxmin()) | set(grouped.idxmax()) | {0, len(data) - 1}
+    for column in keep or []:
+        rows |= set(data.index[data[column].fillna(False).astype(bool)])
+    return data.loc[sorted(rows)]
+
+
+def _steps(points: pd.DataFrame, column: str) -> pd.DataFrame:
+    """The rows of a limit series where its value changes (and the last row): drawn as a step line
+    ("step-after") they give the same picture as every row, with a handful of points instead of thousands.
+    Values are compared to 5 decimals, far below a pixel."""
+    data = points[["measured_at", column]].sort_values("measured_at")
+    value = data[column].round(5)
+    keep = value.ne(value.shift()) | value.ne(value.shift(-1))
+    keep.iloc[-1:] = True
+    return data[keep.to_numpy()]
+
+
 def _limit_lines(points: pd.DataFrame, value: str, limits: list[str], y_title: str, title: str,
                  events: pd.DataFrame | None, signals: pd.DataFrame | None, chart: str) -> alt.LayerChart:
-    base = alt.Chart(points).encode(x=alt.X("measured_at:T", title="measured at (UTC)"))
-    line = base.mark_line(color=OKABE_ITO["blue"], strokeWidth=1,
-                          point=alt.OverlayMarkDef(size=14, color=OKABE_ITO["blue"])).encode(
-        y=alt.Y(f"{value}:Q", title=y_title),
+    x = alt.X("measured_at:T", title="measured at (UTC)")
+    data = points[["measured_at", value, *limits]]
+    beyond = (data[value] < data[limits[0]]) if len(limits) == 2 else pd.Series(False, index=data.index)
+    beyond = beyond | (data[value] > data[limits[-1]])
+    line = alt.Chart(thin_line(data.assign(_beyond=beyond), value, keep=["_beyond"]).drop(columns="_beyond")).mark_line(
+        color=OKABE_ITO["blue"], strokeWidth=1, point=alt.OverlayMarkDef(size=14, color=OKABE_ITO["blue"])).encode(
+        x=x, y=alt.Y(f"{value}:Q", title=y_title),
         tooltip=["measured_at:T", alt.Tooltip(f"{value}:Q", format=".3f")] +
                 [alt.Tooltip(f"{c}:Q", format=".3f") for c in limits])
-    rules = [base.mark_line(color=OKABE_ITO["vermillion"], strokeDash=[5, 3], interpolate="step-after")
-             .encode(y=f"{c}:Q") for c in limits]
+    rules = [alt.Chart(_steps(points, c)).mark_line(color=OKABE_ITO["vermillion"], strokeDash=[5, 3],
+                                                    interpolate="step-after").encode(x=x, y=f"{c}:Q")
+             for c in limits]
     return alt.layer(*_signal_windows(signals, chart), line, *rules, *_event_rules(events)).properties(
         width=WIDTH, height=200, title=title)
 
@@ -154,8 +190,8 @@ def moving_range_chart(points, events=None, signals=None) -> alt.LayerChart:
 def cusum_chart(points: pd.DataFrame, h: float | None, events=None, signals=None) -> alt.LayerChart:
     """Upper and lower CUSUM (lower drawn negative) with the decision interval +/- h."""
     long = pd.concat([
-        points[["measured_at"]].assign(side="upper", value=points["cusum_upper"]),
-        points[["measured_at"]].assign(side="lower", value=-points["cusum_lower"].abs()),
+        thin_line(points[["measured_at"]].assign(side="upper", value=points["cusum_upper"]), "value"),
+        thin_line(points[["measured_at"]].assign(side="lower", value=-points["cusum_lower"].abs()), "value"),
     ])
     base = alt.Chart(long).mark_line(strokeWidth=1).encode(
         x=alt.X("measured_at:T", title="measured at (UTC)"), y=alt.Y("value:Q", title="CUSUM (sigma units)"),

@@ -75,9 +75,16 @@ def missing(df: pd.DataFrame | None) -> bool:
     return df is None or df.empty
 
 
+CANVAS = {"embedOptions": {"renderer": "canvas"}}  # read by vega-embed from the spec's usermeta
+
+
 def chart(ch, key: str | None = None) -> None:
-    """Render an Altair chart at container width."""
-    st.altair_chart(ch, width="stretch", key=key)
+    """Render an Altair chart at container width, drawn on a canvas: with thousands of marks an
+    SVG (vega-embed's default here) costs the browser one DOM node per mark. The chart's title
+    becomes its description, which Vega gives the canvas as its accessible name (aria-label)."""
+    title = getattr(ch, "title", None)
+    extra = {"description": title} if isinstance(title, str) else {}
+    st.altair_chart(ch.properties(usermeta=CANVAS, **extra), width="stretch", key=key)
 
 
 def table_alternative(df: pd.DataFrame, label: str = "Same data as a table") -> None:

@@ -39,5 +39,6 @@ def test_queue_click_opens_the_unit_page(server, page):
     page.locator("strong", has_text=unit).first.wait_for(timeout=30_000)
     assert wait_for_charts(page) >= 2
     page.get_by_text("CUSUM", exact=True).click()
-    page.locator(".vega-embed").filter(has_text="CUSUM").first.wait_for(timeout=30_000)
+    # charts are drawn on a canvas; Vega names it by the chart's description (its title)
+    page.locator(".vega-embed[aria-label^='CUSUM']").first.wait_for(timeout=30_000)
     page.screenshot(path=str(ARTIFACTS / "queue-to-unit.png"), full_page=True)
