@@ -31,6 +31,12 @@ EVENT_COLOURS = {"calibration": OKABE_ITO["green"], "sensor_replacement": OKABE_
 WIDTH = "container"
 
 
+def _tips(*items) -> list[alt.Tooltip]:
+    """Tooltip channels from shorthands ("field:type") or Tooltip objects. Channel objects, not bare
+    strings: Altair resolves each bare shorthand against its whole schema (milliseconds apiece)."""
+    return [i if isinstance(i, alt.Tooltip) else alt.Tooltip(i) for i in items]
+
+
 def _scale(mapping: dict[str, str], present: pd.Series | None = None) -> alt.Scale:
     keys = [k for k in mapping if present is None or k in set(present)]
     return alt.Scale(domain=keys, range=[mapping[k] for k in keys])
@@ -44,7 +50,7 @@ def state_by_region(counts: pd.DataFrame) -> alt.Chart:
         color=alt.Color("state:N", scale=_scale(STATE_COLOURS), title="state",
                         legend=alt.Legend(orient="top")),
         order=alt.Order("state_order:Q"),
-        tooltip=["region:N", "state:N", "units:Q"],
+        tooltip=_tips("region:N", "state:N", "units:Q"),
     ).transform_calculate(
         state_order="indexof(['out of tolerance','signal','in control','not charted'], datum.state)",
     ).properties(width=WIDTH, height=alt.Step(22), title="Units by region and state")
@@ -58,7 +64,7 @@ def unit_tiles(states: pd.DataFrame) -> alt.Chart:
         color=alt.Color("state:N", scale=_scale(STATE_COLOURS), title="state",
                         legend=alt.Legend(orient="top")),
         shape=alt.Shape("state:N", scale=_scale(STATE_SHAPES), legend=None),
-        tooltip=["instrument_id:N", "site_id:N", "state:N", "recent_signals:Q", "last_check_at:T"],
+        tooltip=_tips("instrument_id:N", "site_id:N", "state:N", "recent_signals:Q", "last_check_at:T"),
     ).transform_window(
         position="rank()", groupby=["site_id"], sort=[alt.SortField("instrument_id")],
     ).properties(width=WIDTH, height=alt.Step(16), title="Every unit, by site")
@@ -69,11 +75,11 @@ def fleet_trend(trend: pd.DataFrame, tolerance_pct: float) -> alt.LayerChart:
     base = alt.Chart(trend).encode(x=alt.X("week:T", title="week"))
     colour = alt.Color("standard_kind:N", title="standard",
                        scale=alt.Scale(range=[OKABE_ITO["blue"], OKABE_ITO["orange"], OKABE_ITO["green"]]))
-    band = base.mark_area(opacity=0.2).encode(y="p10_pct:Q", y2="p90_pct:Q", color=colour)
+    band = base.mark_area(opacity=0.2).encode(y=alt.Y("p10_pct:Q"), y2=alt.Y2("p90_pct"), color=colour)
     line = base.mark_line(point=alt.OverlayMarkDef(size=12)).encode(
         y=alt.Y("mean_pct:Q", title="relative error (%)"), color=colour,
-        tooltip=["week:T", "standard_kind:N", alt.Tooltip("mean_pct:Q", format=".2f"),
-                 alt.Tooltip("p10_pct:Q", format=".2f"), alt.Tooltip("p90_pct:Q", format=".2f"), "n_checks:Q"])
+        tooltip=_tips("week:T", "standard_kind:N", alt.Tooltip("mean_pct:Q", format=".2f"),
+                 alt.Tooltip("p10_pct:Q", format=".2f"), alt.Tooltip("p90_pct:Q", format=".2f"), "n_checks:Q"))
     return alt.layer(band, line, _tolerance_rules(tolerance_pct)).properties(
         width=WIDTH, height=260, title="Fleet relative error by week (line: mean; band: 10th-90th percentile)")
 
@@ -81,17 +87,17 @@ def fleet_trend(trend: pd.DataFrame, tolerance_pct: float) -> alt.LayerChart:
 def _tolerance_rules(tolerance_pct: float) -> alt.Chart:
     limits = pd.DataFrame({"y": [-tolerance_pct, tolerance_pct], "what": ["tolerance", "tolerance"]})
     return alt.Chart(limits).mark_rule(strokeDash=[6, 3], color=OKABE_ITO["vermillion"]).encode(
-        y="y:Q", tooltip=[alt.Tooltip("y:Q", title="tolerance (%)")])
+        y=alt.Y("y:Q"), tooltip=_tips(alt.Tooltip("y:Q", title="tolerance (%)")))
 
 
 def _event_rules(events: pd.DataFrame | None) -> list[alt.Chart]:
     if events is None or events.empty:
         return []
     return [alt.Chart(events).mark_rule(strokeWidth=1.5, opacity=0.7).encode(
-        x="event_at:T",
+        x=alt.X("event_at:T"),
         color=alt.Color("event_type:N", scale=_scale(EVENT_COLOURS, events["event_type"]), title="event"),
         strokeDash=alt.StrokeDash("event_type:N", legend=None),
-        tooltip=["event_at:T", "event_type:N", "notes:N"])]
+        tooltip=_tips("event_at:T", "event_type:N", "notes:N"))]
 
 
 def _signal_windows(signals: pd.DataFrame | None, chart: str | None = None) -> list[alt.Chart]:
@@ -101,11 +107,12 @@ def _signal_windows(signals: pd.DataFrame | None, chart: str | None = None) -> l
     if data.empty:
         return []
     window = alt.Chart(data).mark_rect(opacity=0.15, color=OKABE_ITO["orange"]).encode(
-        x="onset_at:T", x2="measured_at:T",
-        tooltip=["chart:N", "rule:N", "direction:N", "onset_at:T", "measured_at:T", "impact_checks:Q"])
+        x=alt.X("onset_at:T"), x2=alt.X2("measured_at"),
+        tooltip=_tips("chart:N", "rule:N", "direction:N", "onset_at:T", "measured_at:T", "impact_checks:Q"))
     mark = alt.Chart(data).mark_point(shape="triangle-down", filled=True, size=90,
                                       color=OKABE_ITO["orange"]).encode(
-        x="measured_at:T", y=alt.value(6), tooltip=["chart:N", "rule:N", "direction:N", "measured_at:T"])
+        x=alt.X("measured_at:T"), y=alt.YValue(6),
+        tooltip=_tips("chart:N", "rule:N", "direction:N", "measured_at:T"))
     return [window, mark]
 
 
@@ -118,8 +125,8 @@ def relative_error_chart(checks: pd.DataFrame, tolerance_pct: float, events: pd.
         shape=alt.Shape("verdict:N", scale=alt.Scale(domain=["pass", "fail"], range=["circle", "cross"])),
         color=alt.Color("verdict:N", scale=alt.Scale(domain=["pass", "fail"],
                                                       range=[OKABE_ITO["blue"], OKABE_ITO["vermillion"]])),
-        tooltip=["measured_at:T", "lot_id:N", "check_type:N", "measured:Q", "expected:Q",
-                 alt.Tooltip("relative_error_pct:Q", format=".2f"), "verdict:N", "outcome:N"])
+        tooltip=_tips("measured_at:T", "lot_id:N", "check_type:N", "measured:Q", "expected:Q",
+                      alt.Tooltip("relative_error_pct:Q", format=".2f"), "verdict:N", "outcome:N"))
     layers = [*_signal_windows(signals), points, _tolerance_rules(tolerance_pct), *_event_rules(events)]
     return alt.layer(*layers).resolve_scale(color="independent", shape="independent").properties(
         width=WIDTH, height=240, title="Checks: relative error against tolerance")
@@ -128,7 +135,8 @@ def relative_error_chart(checks: pd.DataFrame, tolerance_pct: float, events: pd.
 LINE_BUCKETS = 400  # a line chart draws at most 2 points per bucket: about one per pixel column
 
 
-def thin_line(data: pd.DataFrame, value: str, buckets: int = LINE_BUCKETS, keep: list[str] | None = None) -> pd.DataFrame:
+def thin_line(data: pd.DataFrame, value: str, buckets: int = LINE_BUCKETS,
+              keep: list[str] | None = None) -> pd.DataFrame:
     """Min-max decimation of a time series for drawing: in each of `buckets` equal spans of rows (in
     time order), keep the rows with the lowest and highest `value`, the first and last row, and every
     row where a column in `keep` is true (e.g. beyond a limit). A line through these rows covers the
@@ -163,13 +171,13 @@ def _limit_lines(points: pd.DataFrame, value: str, limits: list[str], y_title: s
     data = points[["measured_at", value, *limits]]
     beyond = (data[value] < data[limits[0]]) if len(limits) == 2 else pd.Series(False, index=data.index)
     beyond = beyond | (data[value] > data[limits[-1]])
-    line = alt.Chart(thin_line(data.assign(_beyond=beyond), value, keep=["_beyond"]).drop(columns="_beyond")).mark_line(
+    drawn = thin_line(data.assign(_beyond=beyond), value, keep=["_beyond"]).drop(columns="_beyond")
+    line = alt.Chart(drawn).mark_line(
         color=OKABE_ITO["blue"], strokeWidth=1, point=alt.OverlayMarkDef(size=14, color=OKABE_ITO["blue"])).encode(
         x=x, y=alt.Y(f"{value}:Q", title=y_title),
-        tooltip=["measured_at:T", alt.Tooltip(f"{value}:Q", format=".3f")] +
-                [alt.Tooltip(f"{c}:Q", format=".3f") for c in limits])
+        tooltip=_tips("measured_at:T", *[alt.Tooltip(f"{c}:Q", format=".3f") for c in [value, *limits]]))
     rules = [alt.Chart(_steps(points, c)).mark_line(color=OKABE_ITO["vermillion"], strokeDash=[5, 3],
-                                                    interpolate="step-after").encode(x=x, y=f"{c}:Q")
+                                                    interpolate="step-after").encode(x=x, y=alt.Y(f"{c}:Q"))
              for c in limits]
     return alt.layer(*_signal_windows(signals, chart), line, *rules, *_event_rules(events)).properties(
         width=WIDTH, height=200, title=title)
@@ -197,11 +205,12 @@ def cusum_chart(points: pd.DataFrame, h: float | None, events=None, signals=None
         x=alt.X("measured_at:T", title="measured at (UTC)"), y=alt.Y("value:Q", title="CUSUM (sigma units)"),
         color=alt.Color("side:N", scale=alt.Scale(domain=["upper", "lower"],
                                                    range=[OKABE_ITO["blue"], OKABE_ITO["green"]])),
-        strokeDash=alt.StrokeDash("side:N", legend=None), tooltip=["measured_at:T", "side:N", "value:Q"])
+        strokeDash=alt.StrokeDash("side:N", legend=None), tooltip=_tips("measured_at:T", "side:N", "value:Q"))
     layers = [*_signal_windows(signals, "cusum"), base]
     if h is not None:
         hlines = pd.DataFrame({"y": [h, -h]})
-        layers.append(alt.Chart(hlines).mark_rule(color=OKABE_ITO["vermillion"], strokeDash=[5, 3]).encode(y="y:Q"))
+        layers.append(alt.Chart(hlines).mark_rule(color=OKABE_ITO["vermillion"], strokeDash=[5, 3])
+                      .encode(y=alt.Y("y:Q")))
     layers += _event_rules(events)
     return alt.layer(*layers).resolve_scale(color="independent").properties(
         width=WIDTH, height=200, title="CUSUM (upper and lower) with decision interval")
@@ -217,11 +226,11 @@ def forecast_chart(forecast: pd.DataFrame, tolerance_pct: float) -> alt.LayerCha
     data = forecast.assign(low=forecast["bias_pct"] - 1.959964 * forecast["se_pct"],
                            high=forecast["bias_pct"] + 1.959964 * forecast["se_pct"])
     base = alt.Chart(data).encode(x=alt.X("at:T", title="date"))
-    band = base.mark_area(opacity=0.25, color=OKABE_ITO["sky_blue"]).encode(y="low:Q", y2="high:Q")
+    band = base.mark_area(opacity=0.25, color=OKABE_ITO["sky_blue"]).encode(y=alt.Y("low:Q"), y2=alt.Y2("high"))
     line = base.mark_line(color=OKABE_ITO["blue"]).encode(
         y=alt.Y("bias_pct:Q", title="projected bias (%)"),
-        tooltip=["at:T", alt.Tooltip("bias_pct:Q", format=".2f"), alt.Tooltip("low:Q", format=".2f"),
-                 alt.Tooltip("high:Q", format=".2f")])
+        tooltip=_tips("at:T", alt.Tooltip("bias_pct:Q", format=".2f"), alt.Tooltip("low:Q", format=".2f"),
+                 alt.Tooltip("high:Q", format=".2f")))
     return alt.layer(band, line, _tolerance_rules(tolerance_pct)).properties(
         width=WIDTH, height=200, title="Forecast of bias to tolerance (95 % band, linear drift)")
 
@@ -232,11 +241,11 @@ def funnel_chart(units: pd.DataFrame, limits: pd.DataFrame) -> alt.LayerChart:
     x = alt.X("n_checks:Q", title="number of checks", scale=alt.Scale(type="log"))
     lim = alt.Chart(limits).encode(x=x)
     layers = [
-        lim.mark_line(color=OKABE_ITO["grey"]).encode(y="target_pct:Q"),
-        lim.mark_line(color=OKABE_ITO["orange"], strokeDash=[6, 3]).encode(y="lower95:Q"),
-        lim.mark_line(color=OKABE_ITO["orange"], strokeDash=[6, 3]).encode(y="upper95:Q"),
-        lim.mark_line(color=OKABE_ITO["vermillion"]).encode(y="lower998:Q"),
-        lim.mark_line(color=OKABE_ITO["vermillion"]).encode(y="upper998:Q"),
+        lim.mark_line(color=OKABE_ITO["grey"]).encode(y=alt.Y("target_pct:Q")),
+        lim.mark_line(color=OKABE_ITO["orange"], strokeDash=[6, 3]).encode(y=alt.Y("lower95:Q")),
+        lim.mark_line(color=OKABE_ITO["orange"], strokeDash=[6, 3]).encode(y=alt.Y("upper95:Q")),
+        lim.mark_line(color=OKABE_ITO["vermillion"]).encode(y=alt.Y("lower998:Q")),
+        lim.mark_line(color=OKABE_ITO["vermillion"]).encode(y=alt.Y("upper998:Q")),
     ]
     band = units.assign(band=pd.cut(units["z"].abs(), [-1, 1.959964, 3.090232, float("inf")],
                                     labels=["inside 95 %", "outside 95 %", "outside 99.8 %"]).astype(str))
@@ -247,8 +256,8 @@ def funnel_chart(units: pd.DataFrame, limits: pd.DataFrame) -> alt.LayerChart:
             range=[OKABE_ITO["blue"], OKABE_ITO["orange"], OKABE_ITO["vermillion"]])),
         shape=alt.Shape("band:N", scale=alt.Scale(domain=["inside 95 %", "outside 95 %", "outside 99.8 %"],
                                                    range=["circle", "triangle-up", "diamond"]), legend=None),
-        tooltip=["instrument_id:N", "region:N", "technology:N", "n_checks:Q",
-                 alt.Tooltip("mean_pct:Q", format=".2f"), alt.Tooltip("z:Q", format=".2f")]))
+        tooltip=_tips("instrument_id:N", "region:N", "technology:N", "n_checks:Q",
+                 alt.Tooltip("mean_pct:Q", format=".2f"), alt.Tooltip("z:Q", format=".2f"))))
     return alt.layer(*layers).properties(width=WIDTH, height=380,
                                          title="Units' mean relative error by number of checks")
 
@@ -259,16 +268,16 @@ def lot_effects_chart(effects: pd.DataFrame) -> alt.LayerChart:
     base = alt.Chart(effects).encode(y=y)
     colour = alt.Color("verdict:N", scale=_scale(VERDICT_COLOURS), title="verdict")
     return alt.layer(
-        base.mark_rule(strokeWidth=2).encode(x=alt.X("ci_low_pct:Q", title="lot effect (%)"), x2="ci_high_pct:Q",
+        base.mark_rule(strokeWidth=2).encode(x=alt.X("ci_low_pct:Q", title="lot effect (%)"), x2=alt.X2("ci_high_pct"),
                                              color=colour),
         base.mark_point(filled=True, size=60).encode(
-            x="effect_pct:Q", color=colour,
+            x=alt.X("effect_pct:Q"), color=colour,
             shape=alt.Shape("verdict:N", scale=alt.Scale(domain=["agrees", "watch", "off"],
                                                           range=["circle", "triangle-up", "diamond"])),
-            tooltip=["lot_id:N", "standard_kind:N", alt.Tooltip("effect_pct:Q", format=".2f"),
+            tooltip=_tips("lot_id:N", "standard_kind:N", alt.Tooltip("effect_pct:Q", format=".2f"),
                      alt.Tooltip("ci_low_pct:Q", format=".2f"), alt.Tooltip("ci_high_pct:Q", format=".2f"),
-                     "verdict:N", "n_units:Q", "n_checks:Q"]),
-        alt.Chart(pd.DataFrame({"x": [0.0]})).mark_rule(color=OKABE_ITO["grey"]).encode(x="x:Q"),
+                     "verdict:N", "n_units:Q", "n_checks:Q")),
+        alt.Chart(pd.DataFrame({"x": [0.0]})).mark_rule(color=OKABE_ITO["grey"]).encode(x=alt.X("x:Q")),
     ).properties(width=WIDTH, height=alt.Step(18), title="Lot effects with 95 % intervals")
 
 
@@ -276,7 +285,7 @@ def quarantine_chart(reasons: pd.DataFrame) -> alt.Chart:
     """Quarantined rows by reason."""
     return alt.Chart(reasons).mark_bar(color=OKABE_ITO["vermillion"]).encode(
         y=alt.Y("reason:N", sort="-x", title="reason"), x=alt.X("n_rows:Q", title="rows quarantined"),
-        tooltip=["reason:N", "n_rows:Q", "n_problems:Q", "n_files:Q"],
+        tooltip=_tips("reason:N", "n_rows:Q", "n_problems:Q", "n_files:Q"),
     ).properties(width=WIDTH, height=alt.Step(22), title="Quarantined rows by reason")
 
 
@@ -285,5 +294,5 @@ def event_strip(events: pd.DataFrame) -> alt.Chart:
     return alt.Chart(events).mark_tick(thickness=2, size=14).encode(
         x=alt.X("event_at:T", title="time (UTC)"), y=alt.Y("event_type:N", title=None),
         color=alt.Color("event_type:N", scale=_scale(EVENT_COLOURS, events["event_type"]), legend=None),
-        tooltip=["event_at:T", "event_type:N", "notes:N"],
+        tooltip=_tips("event_at:T", "event_type:N", "notes:N"),
     ).properties(width=WIDTH, height=alt.Step(18), title="Service events and lot changes")
