@@ -350,3 +350,33 @@ def test_fleet_page_asks_for_the_main_job_before_its_summary_exists(tmp_path, mo
     at = run_page(monkeypatch, db, "fleet")
     assert not at.exception
     assert any("breathfleet run" in i.value for i in at.info)
+
+
+def test_thinned_line_keeps_every_bucket_extreme_and_flagged_rows():
+    import numpy as np
+    rng = np.random.default_rng(3)
+    n = 3000
+    data = pd.DataFrame({"measured_at": pd.date_range("2026-01-01", periods=n, freq="h"),
+                         "z": np.cumsum(rng.normal(size=n))})
+    data["beyond"] = data["z"].abs() > 40
+    thin = figures.thin_line(data.sample(frac=1, random_state=1), "z", buckets=100, keep=["beyond"])
+    # common practice (min/max decimation per pixel column): each bucket's lowest and highest value
+    # survive, so a line through the kept rows spans the same range in every bucket
+    buckets = np.arange(n) * 100 // n
+    for b in range(100):
+        part = data["z"][buckets == b]
+        assert part.min() in set(thin["z"]) and part.max() in set(thin["z"])
+    assert set(data.loc[data["beyond"], "measured_at"]) <= set(thin["measured_at"])
+    assert len(thin) <= 2 * 100 + 2 + int(data["beyond"].sum())
+    assert thin["measured_at"].is_monotonic_increasing
+    short = data.head(150)
+    assert figures.thin_line(short, "z", buckets=100).equals(short)  # short series are drawn whole
+
+
+def test_limit_steps_keep_every_change():
+    points = pd.DataFrame({"measured_at": pd.date_range("2026-01-01", periods=8, freq="D"),
+                           "ewma_ucl": [1.0, 1.2, 1.3, 1.3, 1.3, 1.3, 1.5, 1.5]})
+    steps = figures._steps(points, "ewma_ucl")
+    # common practice: a step-after line through the change points draws the same limit
+    redrawn = pd.merge_asof(points[["measured_at"]], steps, on="measured_at")
+    assert (redrawn["ewma_ucl"] == points["ewma_ucl"]).all() and len(steps) < len(points)
