@@ -33,11 +33,22 @@ for name, chosen in filters.items():
     if chosen:
         shown = shown[shown[name].astype(str).isin(chosen)]
 
+table = shown[["rank", "instrument_id", "region", "site_id", "technology", "p_breach", "rank_low",
+               "rank_high", "reasons"]]
+# A click that opens a unit is handled before the table is drawn: the rerun it causes then
+# switches page at once instead of first sending the whole queue to the browser again.
+try:
+    picked = list(st.session_state["queue_table"]["selection"]["rows"])
+except (KeyError, TypeError):
+    picked = []
+if picked and picked[0] < len(table):
+    st.switch_page("views/unit.py", query_params={"unit": str(table.iloc[picked[0]]["instrument_id"])})
+if st.session_state.get("queue_open_button") and st.session_state.get("queue_open_unit") is not None:
+    st.switch_page("views/unit.py", query_params={"unit": str(st.session_state["queue_open_unit"])})
+
 computed = pd.Timestamp(queue["computed_at"].max())
 st.caption(f"Queue computed at {computed:%Y-%m-%d %H:%M} UTC · {len(shown):,} of {len(queue):,} units shown. "
            "Select a row to open the unit.")
-table = shown[["rank", "instrument_id", "region", "site_id", "technology", "p_breach", "rank_low",
-               "rank_high", "reasons"]]
 event = st.dataframe(
     table, hide_index=True, width="stretch", on_select="rerun", selection_mode="single-row",
     key="queue_table",
