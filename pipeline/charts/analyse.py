@@ -275,15 +275,7 @@ def read_chart_input(con: duckdb.DuckDBPyConnection, with_rebaselines: bool, thr
     The query returns integer codes into small name tables made here, because converting
     millions of repeated strings is the slow part of reading a whole fleet.
     """
-    con.execute("CREATE OR REPLACE TEMP TABLE _bf_units AS SELECT instrument_id, "
-                "CAST(row_number() OVER (ORDER BY instrument_id) - 1 AS INTEGER) AS unit_code "
-                "FROM (SELECT instrument_id FROM instruments UNION SELECT DISTINCT instrument_id FROM checks)")
-    con.execute("CREATE OR REPLACE TEMP TABLE _bf_technologies AS SELECT name, "
-                "CAST(row_number() OVER (ORDER BY name) - 1 AS INTEGER) AS code FROM "
-                "(SELECT 'unknown' AS name UNION SELECT DISTINCT technology FROM instruments WHERE technology IS NOT NULL)")
-    con.execute("CREATE OR REPLACE TEMP TABLE _bf_kinds AS SELECT name, "
-                "CAST(row_number() OVER (ORDER BY name) - 1 AS INTEGER) AS code FROM "
-                "(SELECT 'unknown' AS name UNION SELECT DISTINCT standard_kind FROM lots WHERE standard_kind IS NOT NULL)")
+    con.execute(sql_text("queries/charts_name_codes"))
     con.execute("CREATE OR REPLACE TEMP TABLE _bf_recharge AS SELECT unnest($u::VARCHAR[]) AS instrument_id",
                 {"u": sorted(recharge)})
     try:
