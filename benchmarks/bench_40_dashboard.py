@@ -1,8 +1,9 @@
 """Dashboard speed in a real browser on the 10-million-check benchmark fleet.
 
-For each page: the first render (a fresh browser session after the server started, each
-page's caches cold) and a second render (warm caches). For the unit page: the drill-down
-from the service queue into a unit, and the switch to another unit. A render is finished
+For each page: the first render on a fresh server (cold caches: no visitor yet, so Python's
+imports, the snapshot's connection and every query of the page happen during the render),
+the first and second visit inside one session (warm), the drill-down from the service queue
+into a unit not opened before, and another unit by its address (see measure). A render is finished
 when the page title is shown, Streamlit's running indicator and loading skeletons are gone
 and the DOM has been still for a settle window; the time reported is when it became still.
 Targets (issue 7): first render < 2 s, drill-down < 1 s.
@@ -10,8 +11,9 @@ Targets (issue 7): first render < 2 s, drill-down < 1 s.
 The database is the benchmark fleet as a program runs it: a copy of the ingested fleet
 (benchmarks.fleet) after the main job (charts, fleet model, service queue, published snapshot),
 built once into bench-output/dashboard-work.duckdb and reused while the ingested fleet and the
-schema files are unchanged (see analysed_database). Every measurement starts a fresh server,
-so the dashboard's caches are cold; the operating system's file cache is not dropped.
+schema files are unchanged (see analysed_database). The operating system's file cache is not
+dropped between servers, and the machine's other load is not controlled: on two shared cores
+figures vary by +-0.5 s between runs.
 """
 
 from __future__ import annotations
