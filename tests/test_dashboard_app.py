@@ -271,7 +271,7 @@ def test_dashboard_reads_while_a_writer_ingests(tmp_path, monkeypatch):
 
 def test_cli_serves_headless_on_localhost(tmp_path):
     command = streamlit_command(8642)
-    assert command[1:4] == ["-m", "streamlit", "run"]
+    assert command[1:4] == ["-m", "dashboard.serve", "run"]
     assert command[command.index("--server.headless") + 1] == "true"
     assert command[command.index("--server.address") + 1] == "127.0.0.1"
     env = dashboard_environment(tmp_path / "x.duckdb", None)

@@ -15,8 +15,9 @@ APP = Path(__file__).resolve().parent.parent.parent / "dashboard" / "app.py"
 
 
 def streamlit_command(port: int, address: str = "127.0.0.1") -> list[str]:
-    """The command line that serves the dashboard headless on `address:port`."""
-    return [sys.executable, "-m", "streamlit", "run", str(APP),
+    """The command line that serves the dashboard headless on `address:port` (through
+    dashboard.serve, which imports the heavy libraries before the server listens)."""
+    return [sys.executable, "-m", "dashboard.serve", "run", str(APP),
             "--server.headless", "true", "--server.address", address, "--server.port", str(port),
             "--browser.gatherUsageStats", "false", "--global.developmentMode", "false",
             "--server.fileWatcherType", "none", "--client.toolbarMode", "viewer"]
