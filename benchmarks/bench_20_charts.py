@@ -5,15 +5,12 @@ after that week is added back. The per-unit loop (plain Python recursions for CU
 pandas for moving range and rolling run rules, one chart group at a time) runs on a random
 sample of chart groups in the same process and is scaled up by checks. Targets: full < 30 s,
 >= 50x the loop, incremental week < 3 s.
-Fleet: benchmarks.fleet.benchmark_database() when it exists, else a simulated fleet
-(pipeline.models.simulate.simulate_fleet, 5,000 units x 2,000 checks) cached in bench-output/.
+Fleet: benchmarks.fleet.benchmark_database() (the demo generator at 5,000 units x 24 months).
 """
 
 from __future__ import annotations
 
-import os
 import shutil
-import sys
 import time
 from pathlib import Path
 
@@ -21,29 +18,6 @@ import numpy as np
 import pandas as pd
 
 OUT = Path(__file__).resolve().parent.parent / "bench-output"
-
-
-def _source_db(n_units: int, per_unit: int) -> Path:
-    try:
-        from benchmarks.fleet import benchmark_database
-        return Path(benchmark_database())
-    except ImportError:
-        pass
-    import duckdb
-
-    from pipeline.db import migrate
-    from pipeline.models.simulate import simulate_fleet
-    path = OUT / f"charts-{n_units}x{per_unit}.duckdb"
-    if not path.exists():
-        OUT.mkdir(exist_ok=True)
-        tmp = path.with_suffix(".tmp")
-        tmp.unlink(missing_ok=True)
-        con = duckdb.connect(str(tmp))
-        migrate(con)
-        simulate_fleet(con, n_units=n_units, checks_per_unit=per_unit, days=720, seed=2026)
-        con.close()
-        os.replace(tmp, path)
-    return path
 
 
 def loop_charts(frame: pd.DataFrame, params: dict, pooled: float) -> int:
@@ -76,14 +50,16 @@ def loop_charts(frame: pd.DataFrame, params: dict, pooled: float) -> int:
     return signals
 
 
-def main(n_units: int = 5000, per_unit: int = 2000) -> None:
+def main() -> None:
     import duckdb
 
     from pipeline.charts.analyse import analyse_fleet, chart_parameters
     from pipeline.db import migrate, query_df
     from pipeline.settings import Settings
 
-    src = _source_db(n_units, per_unit)
+    from benchmarks.fleet import benchmark_database
+
+    src = Path(benchmark_database())
     work = OUT / "charts-work.duckdb"
     shutil.copyfile(src, work)
     con = duckdb.connect(str(work))
@@ -139,5 +115,4 @@ def main(n_units: int = 5000, per_unit: int = 2000) -> None:
 
 
 if __name__ == "__main__":
-    args = [int(a) for a in sys.argv[1:3]]
-    main(*args)
+    main()
