@@ -133,3 +133,14 @@ def test_cli_design_chart_user_error_is_one_line():
     result = CliRunner().invoke(main, ["design-chart", "--shift", "-1"])
     assert result.exit_code != 0
     assert result.output.strip() == "Error: the shift to detect must be positive (in sigma), got -1.0"
+
+
+def test_cli_design_chart_defaults_come_from_the_settings(tmp_path):
+    # the design shown without options is the one analyse uses (chart_parameters reads the same settings)
+    settings = tmp_path / "program.toml"
+    settings.write_text("[charts]\ntarget_arl0 = 370.4\nshift_sigma = 1.5\n", encoding="utf-8")
+    result = CliRunner().invoke(main, ["--settings", str(settings), "design-chart", "--json"])
+    assert result.exit_code == 0, result.output
+    out = json.loads(result.output)
+    assert out["target_arl0"] == pytest.approx(370.4) and out["shift"] == pytest.approx(1.5)
+    assert out["h"] == pytest.approx(design_cusum(370.4, 1.5).h, rel=1e-9)

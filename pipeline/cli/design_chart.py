@@ -12,16 +12,26 @@ from pipeline.errors import InputError
 
 
 @click.command("design-chart", epilog="Example: breathfleet design-chart --arl0 500 --shift 1 --drift 0.05")
-@click.option("--arl0", type=float, default=500.0, show_default=True, help="Target in-control average run length, in checks.")
-@click.option("--shift", type=float, default=1.0, show_default=True, help="Step change to detect, in sigma.")
+@click.option("--arl0", type=float, default=None,
+              help="Target in-control average run length, in checks (default: charts.target_arl0 of the settings).")
+@click.option("--shift", type=float, default=None,
+              help="Step change to detect, in sigma (default: charts.shift_sigma of the settings).")
 @click.option("--chart", type=click.Choice(["cusum", "ewma"]), default="cusum", show_default=True, help="Chart to design.")
 @click.option("--drift", type=float, default=None, help="Also report the run length under a linear drift (sigma per check).")
-@click.option("--headstart", type=float, default=0.0, show_default=True, help="CUSUM fast-initial-response headstart (sigma).")
+@click.option("--headstart", type=float, default=None,
+              help="CUSUM fast-initial-response headstart, sigma (default: charts.cusum_headstart of the settings).")
 @click.option("--checks-per-week", type=float, default=None, help="Fleet checks per week: report expected false alarms per week.")
 @click.option("--json", "as_json", is_flag=True, help="Print JSON instead of a table.")
-def command(arl0: float, shift: float, chart: str, drift: float | None, headstart: float,
-            checks_per_week: float | None, as_json: bool) -> None:
-    """Design a two-sided CUSUM or EWMA chart by average run length (in sigma units)."""
+@click.pass_obj
+def command(settings, arl0: float | None, shift: float | None, chart: str, drift: float | None,
+            headstart: float | None, checks_per_week: float | None, as_json: bool) -> None:
+    """Design a two-sided CUSUM or EWMA chart by average run length (in sigma units); options not
+    given come from the program's [charts] settings, so the design shown is the one analyse uses."""
+    cs = settings.charts
+    arl0 = cs.target_arl0 if arl0 is None else arl0
+    shift = cs.shift_sigma if shift is None else shift
+    if headstart is None:
+        headstart = cs.cusum_headstart if chart == "cusum" else 0.0
     try:
         if chart == "cusum":
             design = design_cusum(arl0, shift, headstart=headstart, drift=drift)
