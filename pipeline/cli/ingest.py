@@ -7,7 +7,7 @@ import json
 import click
 
 from pipeline.db import open_database, publish_snapshot
-from pipeline.sources.ingest import expand_paths, ingest_file
+from pipeline.sources.ingest import expand_paths, iter_ingest
 from pipeline.sources.profiles import TABLES, load_profile
 from pipeline.sources.pseudonymise import operator_key
 from pipeline.standards import sync_standards_settings
@@ -31,16 +31,16 @@ def command(settings, db_path, profile_path, table, quiet, as_json, paths):
     results = []
     try:
         show = not quiet and not as_json and len(files) > 1
-        with click.progressbar(files, label="Ingesting", file=None if show else _Null(),
-                               item_show_func=lambda p: p.name if p else "") as bar:
-            for path in bar:
-                try:
-                    results.append(ingest_file(con, path, settings, profile, table, key=key))
-                finally:
-                    if results:
-                        sync_standards_settings(con, settings)   # brings check_results up to date
-                        publish_snapshot(con, db_path)
+        with click.progressbar(length=len(files), label="Ingesting", file=None if show else _Null()) as bar:
+            for result in iter_ingest(con, files, settings, profile, table, key=key):
+                results.append(result)
+                bar.update(1)
     finally:
+        if results:
+            # once per command, not per file: derived expected values and verdicts, then the
+            # snapshot readers use (they keep reading the previous one until it is replaced)
+            sync_standards_settings(con, settings)
+            publish_snapshot(con, db_path)
         con.close()
     if as_json:
         click.echo(json.dumps([r.as_dict() for r in results], indent=2))

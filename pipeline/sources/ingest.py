@@ -9,8 +9,8 @@ rows_read = rows_stored + rows_duplicate + rows_quarantined.
 
 from __future__ import annotations
 
-import hashlib
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Iterator
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import asdict, dataclass
 from datetime import datetime, timezone
 from pathlib import Path
@@ -23,7 +23,7 @@ from pipeline.settings import Settings
 from pipeline.sources.profiles import (CANONICAL, CANONICAL_COLUMNS, CHECK_TYPES, OUTCOMES, TABLES,
                                        SourceProfile)
 from pipeline.sources.pseudonymise import operator_key, pseudonymise
-from pipeline.sources.readers import file_format, read_header, stage_source
+from pipeline.sources.readers import Prepared, Staged, prepare_file, raw_lines, stage_source, unstage
 from pipeline.units import _SPELLINGS, TO_STORAGE
 
 
@@ -44,14 +44,6 @@ class FileResult:
 
     def as_dict(self) -> dict:
         return asdict(self)
-
-
-def sha256_file(path: Path) -> str:
-    digest = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for block in iter(lambda: fh.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()
 
 
 def detect_table(path: Path, columns: list[str], profile: SourceProfile, table: str | None) -> str:
@@ -136,7 +128,37 @@ _CHECK_RULES = [
 ]
 
 
-def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settings: Settings, now: datetime) -> dict:
+# Where the parsed-checks relation filters _src (see _checks_relation).
+_WHERE = "/* where */"
+# The columns of _p that _store_checks inserts.
+_STORED = "line, instrument_id, at_utc, lot_id, ct, target_g, measured_g, units_eff, temp_n, pressure_n, site_id, operator_id, oc"
+
+
+def _bad_condition(rules) -> str:
+    """SQL: the row is malformed or breaks one of `rules`."""
+    conds = " OR ".join(f"coalesce(({cond}), false)" for _, _, cond, _ in rules) or "false"
+    return f"_malformed OR (NOT _malformed AND ({conds}))"
+
+
+def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settings: Settings,
+                  now: datetime) -> tuple[dict, str]:
+    """Create _p: the stored columns of every check and its _bad flag (one pass over _src).
+
+    Returns the rules' parameters and the SQL relation of the bad rows with every parsed column,
+    which the quarantine reads: it recomputes the parse for those rows only, so _p stays narrow.
+    """
+    relation, params = _checks_relation(con, profile)
+    params |= {"mmin": settings.ingest.measured_min, "mmax": settings.ingest.measured_max,
+               "future": (now.replace(tzinfo=None) if now.tzinfo is None
+                          else now.astimezone(timezone.utc).replace(tzinfo=None))
+               + _hours(settings.ingest.future_tolerance_hours)}
+    _exec(con, f"CREATE OR REPLACE TEMP TABLE _p AS SELECT {_STORED}, {_bad_condition(_CHECK_RULES)} AS _bad "
+               f"FROM ({relation.replace(_WHERE, '')})", params)
+    return params, "(" + relation.replace(_WHERE, "WHERE line IN (SELECT line FROM _p WHERE _bad)") + ")"
+
+
+def _checks_relation(con: duckdb.DuckDBPyConnection, profile: SourceProfile) -> tuple[str, dict]:
+    """SQL of every parsed column of the checks in _src (filtered at _WHERE), and its parameters."""
     _mapping_tables(con, profile)
     d = profile.decimal
     if profile.time_zone_column:
@@ -162,7 +184,7 @@ def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settin
                {local} AS local_at, {offset} AS offset_at,
                {zone_expr} AS zone_raw, z.name AS zone,
                i.in_service_on, i.instrument_id IS NOT NULL AS inst_known
-        FROM (SELECT *, coalesce(units, $units) AS units_eff FROM _src) s
+        FROM (SELECT *, coalesce(units, $units) AS units_eff FROM _src {_WHERE}) s
         LEFT JOIN _units u ON lower(trim(s.units_eff)) = u.spelling
         LEFT JOIN _check_types ct ON lower(s.check_type) = ct.spelling
         LEFT JOIN _outcomes oc ON lower(s.outcome) = oc.spelling
@@ -172,8 +194,7 @@ def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settin
     """
     # local -> UTC; a round trip that does not return the same wall time is a gap, one that has a
     # second UTC instant an hour (or half an hour) away with the same wall time is an overlap.
-    _exec(con, """
-        CREATE OR REPLACE TEMP TABLE _p AS
+    return """
         WITH p1 AS (""" + p1 + """),
         a AS (
           SELECT *, CASE WHEN local_at IS NOT NULL AND zone IS NOT NULL THEN timezone(zone, local_at) END AS _tz_at
@@ -191,11 +212,7 @@ def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settin
                target_n * factor AS target_g, measured_n * factor AS measured_g,
                l.lot_id IS NOT NULL AS lot_known
         FROM b LEFT JOIN lots l ON l.lot_id = b.lot_id
-    """, params)
-    return {"mmin": settings.ingest.measured_min, "mmax": settings.ingest.measured_max,
-            "future": (now.replace(tzinfo=None) if now.tzinfo is None
-                       else now.astimezone(timezone.utc).replace(tzinfo=None))
-            + _hours(settings.ingest.future_tolerance_hours)}
+    """, params
 
 
 def _hours(h: float):
@@ -203,56 +220,60 @@ def _hours(h: float):
     return timedelta(hours=h)
 
 
-def _quarantine(con: duckdb.DuckDBPyConnection, file_id: int, rules, params: dict, source: str = "_p",
-                value_columns: dict[str, str] | None = None, malformed_message: str = "'wrong number of fields'") -> int:
-    """Write one quarantine row per problem; mark bad rows in _bad(line). Returns rows quarantined.
-
-    `malformed_message` is the SQL text of the message of a malformed row (readers.MALFORMED_MESSAGE).
-    """
+def _quarantine(con: duckdb.DuckDBPyConnection, file_id: int, rules, params: dict, staged: Staged,
+                source: str = "_p", value_columns: dict[str, str] | None = None) -> int:
+    """Write one quarantine row per problem; mark bad rows in _bad(line). Returns rows quarantined."""
     conds = [f"coalesce(({cond}), false)" for _, _, cond, _ in rules]
-    _exec(con, f"CREATE OR REPLACE TEMP TABLE _flagged AS SELECT * FROM {source} "
-               f"WHERE _malformed OR (NOT _malformed AND ({' OR '.join(conds) or 'false'}))", params)
+    _exec(con, f"CREATE OR REPLACE TEMP TABLE _flagged AS SELECT * FROM {source} WHERE {_bad_condition(rules)}", params)
     parts = [f"SELECT line, NULL AS field, _raw AS value, 'malformed_line' AS reason, "
-             f"{malformed_message} AS message FROM _flagged WHERE _malformed"]
+             f"{staged.malformed_message} AS message FROM _flagged WHERE _malformed"]
     for (field, reason, _, message), cond in zip(rules, conds):
         value = (value_columns or {}).get(field, field)
         parts.append(f"SELECT line, '{field}', {value}, '{reason.value}', {message} FROM _flagged "
                      f"WHERE NOT _malformed AND {cond}")
     _exec(con, "CREATE OR REPLACE TEMP TABLE _problems AS " + " UNION ALL ".join(parts), params)
-    con.execute("""INSERT INTO quarantine (file_id, line, field, value, reason, message, raw_line)
-                   SELECT $fid, p.line, p.field, p.value, p.reason, p.message, s._raw
-                   FROM _problems p JOIN _src s USING (line) ORDER BY p.line""", {"fid": file_id})
     con.execute("CREATE OR REPLACE TEMP TABLE _bad AS SELECT line FROM _flagged")
-    return con.execute("SELECT count(*) FROM _bad").fetchone()[0]
+    bad = con.execute("SELECT count(*) FROM _bad").fetchone()[0]
+    if bad:
+        con.execute(f"""INSERT INTO quarantine (file_id, line, field, value, reason, message, raw_line)
+                        SELECT $fid, p.line, p.field, p.value, p.reason, p.message, s._raw
+                        FROM _problems p JOIN {raw_lines(con, staged, '_bad')} s USING (line) ORDER BY p.line""",
+                    {"fid": file_id})
+    return bad
 
 
 def _store_checks(con, file_id: int, key: bytes) -> int:
+    """Insert the good rows of _p that are not exact duplicates; return how many were stored.
+
+    check_id = the highest stored id + the row's line: unique, increasing in ingest order (with
+    gaps where rows were quarantined or skipped), and no sort is needed. The in-file duplicate
+    window runs only when the file holds duplicates (a cheaper DISTINCT count finds out).
+    """
     ops = [r[0] for r in con.execute("SELECT DISTINCT operator_id FROM _p WHERE operator_id IS NOT NULL").fetchall()]
     con.execute("CREATE OR REPLACE TEMP TABLE _ops AS SELECT unnest($c) AS code, unnest($h) AS hashed",
                 {"c": ops, "h": [pseudonymise(o, key) for o in ops]})
-    lo, hi = con.execute("SELECT min(at_utc), max(at_utc) FROM _p").fetchone()
-    before = con.execute("SELECT count(*) FROM checks").fetchone()[0]
-    con.execute("""
+    lo, hi, rows, distinct = con.execute(
+        "SELECT min(at_utc), max(at_utc), count(*), count(DISTINCT (instrument_id, at_utc, lot_id, ct, measured_g)) "
+        "FROM _p ANTI JOIN _bad USING (line)").fetchone()
+    firsts = ("" if rows == distinct else
+              "QUALIFY row_number() OVER (PARTITION BY instrument_id, at_utc, lot_id, ct, measured_g ORDER BY line) = 1")
+    before, base = con.execute("SELECT count(*), coalesce(max(check_id), 0) FROM checks").fetchone()
+    con.execute(f"""
         INSERT INTO checks (check_id, instrument_id, measured_at, lot_id, check_type, target, measured, units,
                             simulator_temp_c, pressure_kpa, site_id, operator_id, outcome, file_id, line)
-        WITH good AS (
-          SELECT p.* FROM _p p ANTI JOIN _bad b ON b.line = p.line),
-        firsts AS (
-          SELECT * FROM good
-          QUALIFY row_number() OVER (PARTITION BY instrument_id, at_utc, lot_id, ct, measured_g ORDER BY line) = 1),
+        WITH firsts AS (
+          SELECT * FROM _p ANTI JOIN _bad USING (line) {firsts}),
         existing AS (
           SELECT instrument_id, measured_at, lot_id, check_type, measured FROM checks
-          WHERE measured_at BETWEEN $lo AND $hi),
-        new AS (
-          SELECT f.* FROM firsts f ANTI JOIN existing e
-            ON e.instrument_id = f.instrument_id AND e.measured_at = f.at_utc AND e.lot_id = f.lot_id
-           AND e.check_type = f.ct AND e.measured = f.measured_g)
-        SELECT (SELECT coalesce(max(check_id), 0) FROM checks) + row_number() OVER (ORDER BY line),
-               instrument_id, at_utc, lot_id, ct, target_g, measured_g, units_eff, temp_n, pressure_n,
-               site_id, o.hashed, oc, $fid, line
-        FROM new LEFT JOIN _ops o ON o.code = new.operator_id
-        ORDER BY line
-    """, {"lo": lo, "hi": hi, "fid": file_id})
+          WHERE measured_at BETWEEN $lo AND $hi)
+        SELECT $base + f.line, f.instrument_id, f.at_utc, f.lot_id, f.ct, f.target_g, f.measured_g, f.units_eff,
+               f.temp_n, f.pressure_n, f.site_id, o.hashed, f.oc, $fid, f.line
+        FROM firsts f
+        ANTI JOIN existing e
+          ON e.instrument_id = f.instrument_id AND e.measured_at = f.at_utc AND e.lot_id = f.lot_id
+         AND e.check_type = f.ct AND e.measured = f.measured_g
+        LEFT JOIN _ops o ON o.code = f.operator_id
+    """, {"lo": lo, "hi": hi, "fid": file_id, "base": base})
     return con.execute("SELECT count(*) FROM checks").fetchone()[0] - before
 
 
@@ -270,8 +291,8 @@ _REF_REQUIRED = {"sites": ["site_id", "time_zone"], "instruments": ["instrument_
                  "service_events": ["instrument_id", "event_at", "event_type"]}
 
 
-def _ingest_reference(con, table: str, profile: SourceProfile, file_id: int,
-                      malformed_message: str) -> tuple[int, int, int]:
+def _parse_reference(con, profile: SourceProfile, table: str) -> list:
+    """Create _p from the staged records of a reference table; return its quarantine rules."""
     _mapping_tables(con, profile)
     types = _REF_TYPES[table]
     cols = list(CANONICAL_COLUMNS[table])
@@ -300,14 +321,18 @@ def _ingest_reference(con, table: str, profile: SourceProfile, file_id: int,
     joins = {"sites": "LEFT JOIN (SELECT name FROM pg_timezone_names()) z ON z.name = s.time_zone",
              "lots": "LEFT JOIN _units u ON lower(trim(s.units)) = u.spelling"}.get(table, "")
     con.execute(f"CREATE OR REPLACE TEMP TABLE _p AS SELECT s.*, {', '.join(conv)}{extra} FROM _src s {joins}")
-    quarantined = _quarantine(con, file_id, rules, {}, malformed_message=malformed_message)
+    return rules
+
+
+def _store_reference(con, table: str) -> tuple[int, int]:
+    """Insert or replace the changed good rows of _p; return (stored, unchanged)."""
+    cols = list(CANONICAL_COLUMNS[table])
     values = []
     for c in cols:
         if table == "lots" and c in ("target", "expanded_uncertainty"):
             values.append(f"{c}_v * factor AS {c}")
         else:
             values.append(f"{c}_v AS {c}")
-    keys = ", ".join(_REF_KEYS[table])
     con.execute(f"""CREATE OR REPLACE TEMP TABLE _ref AS
         SELECT {', '.join(values)} FROM _p ANTI JOIN _bad USING (line)
         QUALIFY row_number() OVER (PARTITION BY {', '.join(c + '_v' for c in _REF_KEYS[table])} ORDER BY line DESC) = 1""")
@@ -317,53 +342,69 @@ def _ingest_reference(con, table: str, profile: SourceProfile, file_id: int,
                 f"EXCEPT SELECT {col_list} FROM {table}")
     stored = con.execute("SELECT count(*) FROM _changed").fetchone()[0]
     con.execute(f"INSERT OR REPLACE INTO {table} ({col_list}) SELECT {col_list} FROM _changed")
-    del keys
-    return stored, good - stored, quarantined
+    return stored, good - stored
+
+
+def _parse(con, profile: SourceProfile, table: str, settings: Settings, now: datetime) -> tuple[list, dict, str]:
+    """Create _p (parsed records) from _src; return the quarantine rules, their parameters and the
+    relation the quarantine reads the bad rows from."""
+    if table == "checks":
+        params, bad_rows = _parse_checks(con, profile, settings, now)
+        return _CHECK_RULES, params, bad_rows
+    return _parse_reference(con, profile, table), {}, "_p"
 
 
 def ingest_file(con: duckdb.DuckDBPyConnection, path: str | Path, settings: Settings,
                 profile: SourceProfile | None = None, table: str | None = None,
-                now: datetime | None = None, key: bytes | None = None) -> FileResult:
-    """Ingest one file as one transaction and return its ledger row."""
+                now: datetime | None = None, key: bytes | None = None,
+                prepared: Prepared | None = None) -> FileResult:
+    """Ingest one file as one transaction and return its ledger row.
+
+    `prepared` is the file read ahead by `prepare_file` (iter_ingest does that in a second
+    thread); without it the file is prepared here.
+    """
     path = Path(path)
     profile = profile or CANONICAL
     if not path.is_file():
         raise InputError("cannot read file: no such file", file=str(path))
-    try:
-        digest = sha256_file(path)
-    except OSError as exc:
-        raise InputError(f"cannot read file: {exc.strerror}", file=str(path)) from exc
+    if prepared is None or prepared.path != path:
+        try:
+            prepared = prepare_file(path, profile)
+        except OSError as exc:
+            raise InputError(f"cannot read file: {exc.strerror}", file=str(path)) from exc
     now = now or datetime.now(timezone.utc)
     started = datetime.now(timezone.utc).replace(tzinfo=None)
-    fmt = file_format(path, profile)
-    header = read_header(path, profile) if fmt == "csv" else []
-    table = detect_table(path, header, profile, table)
+    table = detect_table(path, prepared.header, profile, table)
     if key is None:
         key = operator_key(settings.ingest.operator_key_file)
+    staged = None
     con.execute("BEGIN TRANSACTION")
     try:
-        file_id = con.execute("SELECT coalesce(max(file_id), 0) + 1 FROM ingest_ledger").fetchone()[0]
-        malformed_message = stage_source(con, path, profile, table)
+        file_id = con.execute("SELECT coalesce(max(file_id), 0) + 1 FROM ingest_ledger").fetchall()[0][0]
+        staged = stage_source(con, prepared, profile, table)
         read = con.execute("SELECT count(*) FROM _src").fetchone()[0]
+        rules, params, bad_rows = _parse(con, profile, table, settings, now)
+        quarantined = _quarantine(con, file_id, rules, params, staged, source=bad_rows,
+                                  value_columns={"time_zone": "zone_raw"} if table == "checks" else None)
         if table == "checks":
-            params = _parse_checks(con, profile, settings, now)
-            quarantined = _quarantine(con, file_id, _CHECK_RULES, params, value_columns={"time_zone": "zone_raw"},
-                                      malformed_message=malformed_message)
             stored = _store_checks(con, file_id, key)
             duplicate = read - quarantined - stored
         else:
-            stored, duplicate, quarantined = _ingest_reference(con, table, profile, file_id, malformed_message)
+            stored, duplicate = _store_reference(con, table)
         finished = datetime.now(timezone.utc).replace(tzinfo=None)
         con.execute("""INSERT INTO ingest_ledger VALUES ($fid, $path, $sha, $table, $profile, $read, $stored,
                        $dup, $q, $started, $finished, $ver)""",
-                    {"fid": file_id, "path": str(path.resolve()), "sha": digest, "table": table,
+                    {"fid": file_id, "path": str(path.resolve()), "sha": prepared.scan.sha256, "table": table,
                      "profile": profile.name, "read": read, "stored": stored, "dup": duplicate,
                      "q": quarantined, "started": started, "finished": finished, "ver": __version__})
-        for t in ("_src", "_p1", "_p", "_flagged", "_problems", "_bad", "_ops", "_ref", "_changed"):
+        unstage(con, staged)
+        for t in ("_p1", "_p", "_flagged", "_problems", "_bad", "_ops", "_ref", "_changed", "_raw_lines"):
             con.execute(f"DROP TABLE IF EXISTS {t}")
         con.execute("COMMIT")
     except BaseException:
         con.execute("ROLLBACK")
+        if staged is not None and staged.fast:
+            con.unregister("_records")
         raise
     return FileResult(file_id, str(path.resolve()), table, profile.name, read, stored, duplicate, quarantined,
                       started.isoformat(), finished.isoformat())
@@ -382,14 +423,40 @@ def expand_paths(paths: Iterable[str | Path]) -> list[Path]:
     return out
 
 
+def _prepare_or_none(path: Path, profile: SourceProfile) -> Prepared | None:
+    """prepare_file for the read-ahead thread: None on any problem (ingest_file then prepares the
+    file itself and reports the problem in the usual way)."""
+    try:
+        return prepare_file(path, profile)
+    except Exception:   # noqa: BLE001 - reported by ingest_file when it prepares the file again
+        return None
+
+
+def iter_ingest(con: duckdb.DuckDBPyConnection, files: list[Path], settings: Settings,
+                profile: SourceProfile | None = None, table: str | None = None,
+                key: bytes | None = None) -> Iterator[FileResult]:
+    """Ingest files in order, each committed on its own, yielding each ledger row.
+
+    While one file is parsed and stored, a second thread reads the next one (`prepare_file`:
+    hash, line count, DuckDB's CSV reader into memory), so the two cores share the work the
+    way a single read_csv over many files shares it. A fatal error leaves earlier files committed.
+    """
+    profile = profile or CANONICAL
+    key = key if key is not None else operator_key(settings.ingest.operator_key_file)
+    with ThreadPoolExecutor(max_workers=1, thread_name_prefix="ingest-read-ahead") as pool:
+        ahead = pool.submit(_prepare_or_none, files[0], profile) if files else None
+        for i, path in enumerate(files):
+            prepared = ahead.result()
+            ahead = pool.submit(_prepare_or_none, files[i + 1], profile) if i + 1 < len(files) else None
+            yield ingest_file(con, path, settings, profile, table, key=key, prepared=prepared)
+
+
 def ingest_paths(con: duckdb.DuckDBPyConnection, paths: Iterable[str | Path], settings: Settings,
                  profile: SourceProfile | None = None, table: str | None = None,
                  on_file: Callable[[FileResult], None] | None = None) -> list[FileResult]:
     """Ingest files in order, each committed on its own; a fatal error leaves earlier files committed."""
-    key = operator_key(settings.ingest.operator_key_file)
     results = []
-    for path in expand_paths(paths):
-        result = ingest_file(con, path, settings, profile, table, key=key)
+    for result in iter_ingest(con, expand_paths(paths), settings, profile, table):
         results.append(result)
         if on_file:
             on_file(result)

@@ -1,0 +1,145 @@
+"""Readers: the file scan, and the fast path (DuckDB's CSV parser) against the line-by-line path."""
+
+from __future__ import annotations
+
+from datetime import datetime, timedelta, timezone
+from pathlib import Path
+
+import pytest
+
+from pipeline.db import open_database
+from pipeline.settings import Settings
+from pipeline.sources import readers
+from pipeline.sources.ingest import ingest_file, ingest_paths, iter_ingest
+from pipeline.sources.profiles import CANONICAL
+from ingest_fixture import HEADER, good_row, write_reference
+
+KEY = b"test-key"
+
+
+@pytest.mark.parametrize("data, lines, clean", [
+    (b"a,b\n1,2\n", 2, True),
+    (b"a,b\n1,2", 2, True),                 # last line without a line break counts
+    (b"a,b\r\n1,2\r\n", 2, True),           # CR LF throughout
+    (b"a,b\n1,2\r\n3,4\n", 3, False),       # a stray CR LF in an LF file
+    (b"a,b\n1\r2\n", 2, False),             # a lone CR
+    (b"", 0, True),
+])
+def test_scan_counts_lines_and_line_endings(tmp_path, data, lines, clean):
+    path = tmp_path / "f.csv"
+    path.write_bytes(data)
+    scan = readers.scan_file(path)
+    assert (scan.lines, scan.clean_endings) == (lines, clean)
+    # FIPS 180-4 SHA-256, through Python's hashlib (general-purpose reference library)
+    import hashlib
+    assert scan.sha256 == hashlib.sha256(data).hexdigest()
+
+
+@pytest.mark.parametrize("data, padded", [
+    (b"a,b\n1,2\n", False),
+    (b"a,b\n1 ,2\n", True),
+    (b"a,b\n1, 2\n", True),
+    (b"a,b\n 1,2\n", True),
+    (b"a,b\n1,2 \n", True),
+    (b"a,b\n1,\t2\n", True),
+    (b"a,b\n1 x,2\n", False),               # a space inside a field is data, not padding
+])
+def test_scan_finds_padded_fields(tmp_path, data, padded):
+    path = tmp_path / "f.csv"
+    path.write_bytes(data)
+    assert readers.scan_file(path).padded is padded
+
+
+def test_scan_finds_padding_across_a_block_boundary(tmp_path):
+    path = tmp_path / "f.csv"
+    head = b"a,b\n" + b"x" * ((1 << 20) - 5) + b","     # the comma is the last byte of the first block
+    path.write_bytes(head + b" 2\n")
+    assert path.read_bytes()[(1 << 20) - 1:(1 << 20) + 1] == b", "
+    assert readers.scan_file(path).padded
+
+
+def _fleet_file(path: Path, n: int) -> dict[int, str]:
+    """n rows (over two DuckDB row groups) with bad rows at known lines and one exact repeat at the
+    end; returns {line: reason} of the bad rows."""
+    start = datetime(2026, 1, 1, tzinfo=timezone.utc)
+    bad, rows = {}, []
+    for i in range(n):
+        at = (start + timedelta(seconds=i)).isoformat()
+        lot, measured = "L1", f"0.0{79 + i % 3}"
+        if i % 50_000 == 7:
+            lot = "NOPE"
+            bad[i + 2] = "unknown_lot"
+        elif i % 50_000 == 11:
+            measured = "abc"
+            bad[i + 2] = "unparsable_field"
+        rows.append(f"U{1 + i % 2},{at},{lot},control,0.080,{measured},g/210L,34.00,,S-1,OP-{i % 7},pass")
+    rows.append(rows[0])
+    path.write_text(HEADER + "\n".join(rows) + "\n", encoding="utf-8")
+    return bad
+
+
+def _contents(con):
+    checks = con.execute("SELECT * EXCLUDE (file_id) FROM checks ORDER BY check_id").fetchall()
+    quarantine = con.execute("SELECT line, field, reason, raw_line FROM quarantine ORDER BY line, field").fetchall()
+    ledger = con.execute("SELECT rows_read, rows_stored, rows_duplicate, rows_quarantined FROM ingest_ledger "
+                         "WHERE table_name = 'checks'").fetchall()
+    return checks, quarantine, ledger
+
+
+@pytest.fixture
+def two_databases(tmp_path, monkeypatch):
+    monkeypatch.setenv("BREATHFLEET_OPERATOR_KEY", KEY.decode())
+    cons = []
+    for name in ("fast", "lines"):
+        con = open_database(tmp_path / f"{name}.duckdb")
+        ingest_paths(con, write_reference(tmp_path), Settings())
+        cons.append(con)
+    yield tmp_path, cons
+    for con in cons:
+        con.close()
+
+
+def test_fast_path_stores_and_quarantines_what_the_line_path_does(two_databases, monkeypatch):
+    tmp, (fast, lines) = two_databases
+    path = tmp / "checks.csv"
+    bad = _fleet_file(path, 260_000)
+    prepared = readers.prepare_file(path, CANONICAL)
+    assert prepared.records is not None and prepared.records.num_rows == 260_001
+    ingest_file(fast, path, Settings(), prepared=prepared)
+    ingest_file(lines, path, Settings(), prepared=readers.Prepared(path, prepared.scan, prepared.header, None))
+    got_fast, got_lines = _contents(fast), _contents(lines)
+    assert got_fast == got_lines
+    checks, quarantine, ledger = got_fast
+    # every bad row is quarantined at its physical line (header = line 1), with that line's text
+    text = path.read_text(encoding="utf-8").split("\n")
+    assert {(q[0], q[2]) for q in quarantine} == set(bad.items())
+    assert all(q[3] == text[q[0] - 1] for q in quarantine)
+    assert ledger == [(260_001, 260_001 - len(bad) - 1, 1, len(bad))]
+    assert all(c[-1] not in bad for c in checks)
+
+
+def test_check_ids_unique_and_increasing_in_ingest_order(two_databases):
+    tmp, (con, _) = two_databases
+    files = []
+    for k in range(3):
+        p = tmp / f"c{k}.csv"
+        p.write_text(HEADER + "\n".join(good_row(i + 1000 * k) for i in range(500)) + "\n", encoding="utf-8")
+        files.append(p)
+    results = list(iter_ingest(con, files, Settings()))
+    assert [r.rows_stored for r in results] == [500, 500, 500]
+    n, distinct, ordered = con.execute("""
+        SELECT count(*), count(DISTINCT check_id),
+               bool_and(check_id > prev) FROM (SELECT check_id, lag(check_id, 1, 0) OVER (ORDER BY file_id, line) AS prev
+                                               FROM checks)""").fetchone()
+    assert n == distinct == 1500 and ordered
+
+
+def test_padded_fields_are_trimmed_on_the_fast_path(two_databases):
+    tmp, (con, _) = two_databases
+    path = tmp / "padded.csv"
+    path.write_text(HEADER + " " + good_row(1).replace(",L1,", ", L1 ,") + "\n", encoding="utf-8")
+    prepared = readers.prepare_file(path, CANONICAL)
+    assert prepared.scan.padded and prepared.records is not None
+    result = ingest_file(con, path, Settings(), prepared=prepared)
+    assert (result.rows_stored, result.rows_quarantined) == (1, 0)
+    assert con.execute("SELECT instrument_id, lot_id FROM checks").fetchall() == [("U1", "L1")]
