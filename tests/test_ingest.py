@@ -105,13 +105,16 @@ def _zoneinfo_kind(local: datetime, zone: str) -> str:
     return "gap" if back != local else "overlap"
 
 
+@pytest.mark.parametrize("bucket", ["15 minutes", "7 minutes"])   # 7: transitions fall inside buckets
 @pytest.mark.parametrize("zone", ["America/New_York", "Europe/Berlin", "Australia/Lord_Howe"])
-def test_local_times_and_dst_against_zoneinfo(db, zone):
+def test_local_times_and_dst_against_zoneinfo(db, zone, bucket, monkeypatch):
+    from pipeline.sources import ingest
+    monkeypatch.setattr(ingest, "LOCAL_TIME_BUCKET", bucket)
     con, tmp, _ = db
     starts = {"America/New_York": [datetime(2026, 3, 8), datetime(2026, 11, 1)],
               "Europe/Berlin": [datetime(2026, 3, 29), datetime(2026, 10, 25)],
               "Australia/Lord_Howe": [datetime(2026, 4, 5), datetime(2026, 10, 4)]}[zone]
-    times = [d + timedelta(minutes=15 * k) for d in starts for k in range(16)]
+    times = [d + timedelta(minutes=15 * k, seconds=s) for d in starts for k in range(16) for s in (0, 401)]
     rows = [f"U1,{t:%Y-%m-%d %H:%M:%S},L1,control,0.080,0.0{80 + i % 10},g/210L,,,S-1,,pass,{zone}"
             for i, t in enumerate(times)]
     f = _write(tmp / "tz.csv", HEADER.strip() + ",tz\n" + "\n".join(rows) + "\n")

@@ -74,6 +74,8 @@ def _num(col: str, decimal: str) -> str:
 
 
 def _mapping_tables(con: duckdb.DuckDBPyConnection, profile: SourceProfile) -> None:
+    for macro in _LOCAL_TIME_MACROS:
+        con.execute(macro)
     units = list(_SPELLINGS.items())
     con.execute("CREATE OR REPLACE TEMP TABLE _units AS SELECT unnest($s) AS spelling, unnest($k) AS ukey, "
                 "unnest($f) AS factor",
@@ -194,25 +196,54 @@ def _checks_relation(con: duckdb.DuckDBPyConnection, profile: SourceProfile) -> 
     """
     # local -> UTC; a round trip that does not return the same wall time is a gap, one that has a
     # second UTC instant an hour (or half an hour) away with the same wall time is an overlap.
-    return """
-        WITH p1 AS (""" + p1 + """),
-        a AS (
-          SELECT *, CASE WHEN local_at IS NOT NULL AND zone IS NOT NULL THEN timezone(zone, local_at) END AS _tz_at
-          FROM p1),
+    # When every time is local (a time_format), conversions are the costly part, so they run per
+    # local-time bucket: a bucket whose first and last instant have the same status and UTC offset
+    # holds no transition (the IANA database has no two transitions within minutes of each other),
+    # so its rows take that offset; rows of a bucket with a transition inside are converted one by
+    # one. ISO times are converted row by row, which costs nothing for those with an offset.
+    per_row = """
         b AS (
-          SELECT *,
-            _tz_at IS NOT NULL AND timezone(zone, _tz_at) <> local_at AS gap,
-            _tz_at IS NOT NULL AND timezone(zone, _tz_at) = local_at AND (
-               timezone(zone, _tz_at + INTERVAL 1 HOUR) = local_at OR timezone(zone, _tz_at - INTERVAL 1 HOUR) = local_at
-               OR timezone(zone, _tz_at + INTERVAL 30 MINUTE) = local_at
-               OR timezone(zone, _tz_at - INTERVAL 30 MINUTE) = local_at) AS overlap
-          FROM a)
-        SELECT b.* EXCLUDE (_tz_at),
-               coalesce(offset_at, CASE WHEN NOT gap AND NOT overlap THEN _tz_at AT TIME ZONE 'UTC' END) AS at_utc,
+          SELECT p1.*, coalesce(_local_gap(zone, local_at), false) AS gap,
+                 coalesce(_local_overlap(zone, local_at), false) AS overlap,
+                 local_at + _local_offset(zone, local_at) AS _local_utc
+          FROM p1)"""
+    bucketed = f"""
+        a AS (SELECT *, time_bucket(INTERVAL '{LOCAL_TIME_BUCKET}', local_at) AS _b FROM p1),
+        buckets AS (
+          SELECT zone, _b, _local_gap(zone, _b) AS gap0, _local_overlap(zone, _b) AS overlap0,
+                 _local_offset(zone, _b) AS offset0,
+                 _local_gap(zone, _e) = gap0 AND _local_overlap(zone, _e) = overlap0
+                   AND _local_offset(zone, _e) = offset0 AS plain
+          FROM (SELECT DISTINCT zone, _b, _b + INTERVAL '{LOCAL_TIME_BUCKET}' - INTERVAL 1 MICROSECOND AS _e
+                FROM a WHERE _b IS NOT NULL AND zone IS NOT NULL)),
+        b AS (
+          SELECT a.* EXCLUDE (_b),
+            CASE WHEN k.plain THEN k.gap0 ELSE coalesce(_local_gap(a.zone, a.local_at), false) END AS gap,
+            CASE WHEN k.plain THEN k.overlap0 ELSE coalesce(_local_overlap(a.zone, a.local_at), false) END AS overlap,
+            a.local_at + CASE WHEN k.plain THEN k.offset0 ELSE _local_offset(a.zone, a.local_at) END AS _local_utc
+          FROM a LEFT JOIN buckets k ON k.zone = a.zone AND k._b = a._b)"""
+    return f"""
+        WITH p1 AS ({p1}),{bucketed if profile.time_format else per_row}
+        SELECT b.* EXCLUDE (_local_utc),
+               coalesce(offset_at, CASE WHEN NOT gap AND NOT overlap THEN _local_utc END) AS at_utc,
                target_n * factor AS target_g, measured_n * factor AS measured_g,
                l.lot_id IS NOT NULL AS lot_known
         FROM b LEFT JOIN lots l ON l.lot_id = b.lot_id
     """, params
+
+
+# Local wall time -> status and UTC offset, as temporary macros (one definition for buckets and rows).
+_LOCAL_TIME_MACROS = [
+    "CREATE OR REPLACE TEMP MACRO _local_offset(zone, l) AS (timezone(zone, l) AT TIME ZONE 'UTC') - l",
+    "CREATE OR REPLACE TEMP MACRO _local_gap(zone, l) AS timezone(zone, timezone(zone, l)) <> l",
+    """CREATE OR REPLACE TEMP MACRO _local_overlap(zone, l) AS timezone(zone, timezone(zone, l)) = l AND (
+         timezone(zone, timezone(zone, l) + INTERVAL 1 HOUR) = l OR timezone(zone, timezone(zone, l) - INTERVAL 1 HOUR) = l
+         OR timezone(zone, timezone(zone, l) + INTERVAL 30 MINUTE) = l
+         OR timezone(zone, timezone(zone, l) - INTERVAL 30 MINUTE) = l)""",
+]
+# Width of the local-time buckets that share one time-zone conversion (tests narrow it to force
+# transitions inside buckets).
+LOCAL_TIME_BUCKET = "15 minutes"
 
 
 def _hours(h: float):
@@ -263,9 +294,9 @@ def _store_checks(con, file_id: int, key: bytes) -> int:
                             simulator_temp_c, pressure_kpa, site_id, operator_id, outcome, file_id, line)
         WITH firsts AS (
           SELECT * FROM _p ANTI JOIN _bad USING (line) {firsts}),
-        existing AS (
+        existing AS (   -- stored checks of this file's time span and instruments
           SELECT instrument_id, measured_at, lot_id, check_type, measured FROM checks
-          WHERE measured_at BETWEEN $lo AND $hi)
+          WHERE measured_at BETWEEN $lo AND $hi AND instrument_id IN (SELECT instrument_id FROM _p))
         SELECT $base + f.line, f.instrument_id, f.at_utc, f.lot_id, f.ct, f.target_g, f.measured_g, f.units_eff,
                f.temp_n, f.pressure_n, f.site_id, o.hashed, f.oc, $fid, f.line
         FROM firsts f
