@@ -25,12 +25,12 @@ from pipeline.charts.baselines import POOLED_METHOD, own_estimates, pooled_sigma
 from pipeline.charts.cusum import tabular_cusum
 from pipeline.charts.design import design_cusum, design_ewma
 from pipeline.charts.ewma import ewma
-from pipeline.charts.grouping import group_starts, position_in_group
+from pipeline.charts.grouping import Segments, group_starts, key_codes
 from pipeline.charts.linearity import fit_linearity
 from pipeline.charts.xbar_s import xbar_s_groups
 from pipeline.charts.individuals import moving_range, mr_ucl_standardised
-from pipeline.charts.run_rules import apply_run_rules, select_rules
-from pipeline.charts.signals import crossings, fleet_significance, impact_checks, signal_p_values
+from pipeline.charts.run_rules import RULES, apply_run_rules, select_rules
+from pipeline.charts.signals import fleet_significance, impact_checks, signal_p_values
 from pipeline.db import sql_text, transaction
 from pipeline.settings import Settings
 
@@ -79,98 +79,132 @@ def pooled_lookup(frame: pd.DataFrame, pooled: pd.DataFrame) -> np.ndarray:
     pool_key = ["technology", "standard_kind", "level"]
     if frame.empty:
         return np.empty(0)
-    parts = [pd.factorize(frame[c], use_na_sentinel=False)[0] for c in pool_key]
-    code = (parts[0].astype(np.int64) * (parts[1].max() + 1) + parts[1]) * (parts[2].max() + 1) + parts[2]
-    code = pd.factorize(code)[0]
-    first = np.unique(code, return_index=True)[1]
+    code, first = key_codes(frame, pool_key)
     keys = frame[pool_key].iloc[first].astype({"technology": str, "standard_kind": str})
     sigma = keys.merge(pooled, how="left", on=pool_key)["sigma"].to_numpy(dtype=float)
     return sigma[code]
 
 
 def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, own: pd.DataFrame,
-                   pooled: pd.DataFrame, params: dict) -> dict[str, pd.DataFrame]:
+                   pooled: pd.DataFrame, params: dict) -> dict:
     """Pure chart computation for new checks of many groups (no database access).
 
     new: new checks (KEY, check_id, measured_at, check_type, relative_error, technology, standard_kind),
       sorted by KEY then time. tail: stored points (KEY, check_id, measured_at, relative_error, position)
       of the same groups. state: chart_state rows; own: stored own baselines (KEY, center, sigma);
-      pooled: technology, standard_kind, level, sigma. Returns points, signals, baselines, state frames.
+      pooled: technology, standard_kind, level, sigma. Returns points, limits (the constant individuals and
+      moving-range limits of every point), signals, baselines, state frames and check_type.
+    Every statistic works on the arrays of all groups back to back (grouping.Segments computed once);
+    in a full run (no tail) the new rows are the frame, so nothing is copied to select them.
     """
     n_min = int(params["own_baseline_min_checks"])
     k, h = params["cusum"]["k"], params["cusum"]["h"]
     headstart = params["cusum"]["headstart"]
     lam, L = params["ewma"]["lam"], params["ewma"]["L"]
-    new = new.assign(old=False)
-    tail = tail.assign(old=True).merge(new[KEY + ["technology", "standard_kind"]].drop_duplicates(KEY),
-                                       how="left", on=KEY)
-    frame = pd.concat([tail, new], ignore_index=True) if len(tail) else new.reset_index(drop=True)
-    if len(tail):
-        frame = frame.sort_values(KEY + ["old", "measured_at", "check_id"], ascending=[True, True, True, False, True, True],
-                                  kind="stable").reset_index(drop=True)
+    has_old = len(tail) > 0
+    if has_old:
+        new = new.assign(old=False)
+        tail = tail.assign(old=True).merge(new[KEY + ["technology", "standard_kind"]].drop_duplicates(KEY),
+                                           how="left", on=KEY)
+        frame = pd.concat([tail, new], ignore_index=True).sort_values(
+            KEY + ["old", "measured_at", "check_id"], ascending=[True, True, True, False, True, True],
+            kind="stable").reset_index(drop=True)
+        old = frame["old"].to_numpy()
+    else:
+        frame = new.reset_index(drop=True)
+        old = np.zeros(len(frame), dtype=bool)
+    nm = ~old
+    new_idx = np.flatnonzero(nm) if has_old else None
+
+    def of_new(a):  # the new rows of a per-row array (all rows in a full run)
+        return a[nm] if has_old else a
     # Unit names as categorical codes: string arrays are the slow part at fleet scale.
     inst = frame["instrument_id"]
     if isinstance(inst.dtype, pd.CategoricalDtype):
         inst_codes, inst_names = inst.cat.codes.to_numpy(), inst.cat.categories
     else:
         inst_codes, inst_names = pd.factorize(inst)
-    frame["instrument_id"] = pd.Categorical.from_codes(inst_codes, categories=inst_names)
+        frame["instrument_id"] = pd.Categorical.from_codes(inst_codes, categories=inst_names)
 
     def unit_of(idx):
-        return pd.Categorical.from_codes(inst_codes[idx], categories=inst_names)
+        return pd.Categorical.from_codes(inst_codes[idx] if idx is not None else inst_codes, categories=inst_names)
+    starts = _starts(frame)
+    seg = Segments.from_starts(starts)
+    gid, pos0 = seg.gid, seg.pos
+    n_groups = seg.n_groups
     st = state.set_index(KEY) if len(state) else None
-    keyidx = pd.MultiIndex.from_frame(frame[KEY]) if (st is not None or len(own)) else None
+    # Carried values are looked up once per group, then spread to the group's rows. The arithmetic
+    # below is the same everywhere; at fleet scale every temporary array costs more than the
+    # arithmetic itself, so a full run (no state, no tail) uses scalars and writes in place.
+    group_keys = pd.MultiIndex.from_frame(frame[KEY].iloc[seg.start_idx]) if (st is not None or len(own)) else None
+
     def carried(col, default):
         if st is None:
-            return np.full(len(frame), default, dtype=float)
-        return st[col].reindex(keyidx).fillna(default).to_numpy(dtype=float)
+            return default
+        return st[col].reindex(group_keys).fillna(default).to_numpy(dtype=float)[gid]
     n0, sum0 = carried("n", 0.0), carried("sum_x", 0.0)
-    starts = _starts(frame)
-    pos0 = position_in_group(starts)
-    old = frame["old"].to_numpy()
     x = frame["relative_error"].to_numpy(dtype=float)
-    n_tail = pd.Series(old.astype(int)).groupby(np.cumsum(starts)).transform("sum").to_numpy()
-    position = n0 - n_tail + pos0 + 1
-    # Quesenberry Q with the frozen pooled sigma (sum of x before the first row of this frame).
+    if has_old:
+        n_tail = pd.Series(old.astype(int)).groupby(gid).transform("sum").to_numpy()
+        tail_sum = pd.Series(np.where(old, x, 0.0)).groupby(gid).transform("sum").to_numpy()
+    else:
+        n_tail, tail_sum = 0, 0.0
+    r0 = n0 - n_tail  # checks of the segment charted before this frame's first row
+    position = np.add(r0, pos0, dtype=float)
+    position += 1
     sig_pool = pooled_lookup(frame, pooled)
-    tail_sum = pd.Series(np.where(old, x, 0.0)).groupby(np.cumsum(starts)).transform("sum").to_numpy()
-    q, q_center, q_scale = short_run.quesenberry_q(x, starts, sig_pool, r0=position - pos0 - 1, sum0=sum0 - tail_sum)
-    # Own baseline: stored, or frozen now from the first n_min checks of the segment.
-    center = np.full(len(frame), np.nan)
-    sigma = np.full(len(frame), np.nan)
+    # Own baseline: stored, or frozen now from the first n_min checks of the segment (per group).
+    center_g = np.full(n_groups, np.nan)
+    sigma_g = np.full(n_groups, np.nan)
     if len(own):
         o = own.set_index(KEY)
-        center = o["center"].reindex(keyidx).to_numpy(dtype=float)
-        sigma = o["sigma"].reindex(keyidx).to_numpy(dtype=float)
-    gid = np.cumsum(starts) - 1
-    est = own_estimates(x, starts, (position - 1).astype(int), n_min)
-    new_own = est[np.isnan(center[np.flatnonzero(starts)][est["group"].to_numpy()])] if len(est) else est
+        center_g = o["center"].reindex(group_keys).to_numpy(dtype=float)
+        sigma_g = o["sigma"].reindex(group_keys).to_numpy(dtype=float)
+    check_no = pos0 if np.isscalar(r0) and r0 == 0 else (position - 1).astype(int)
+    est = own_estimates(x, starts, check_no, n_min, seg=seg)
+    new_own = est[np.isnan(center_g[est["group"].to_numpy()])] if len(est) else est
     if len(new_own):
-        def per_row(values):  # group values spread to the group's rows (NaN for other groups)
-            out = np.full(int(gid[-1]) + 1, np.nan)
-            out[new_own["group"].to_numpy()] = values
-            return out[gid]
-        fill_c, fill_s = per_row(new_own["center"].to_numpy()), per_row(new_own["sigma"].to_numpy())
-        center = np.where(np.isnan(center), fill_c, center)
-        sigma = np.where(np.isnan(sigma), fill_s, sigma)
-    use_own = (position > n_min) & np.isfinite(sigma) & (sigma > 0)
-    z = np.where(use_own, (x - center) / np.where(use_own, sigma, 1.0), q)
+        fill_c, fill_s = np.full(n_groups, np.nan), np.full(n_groups, np.nan)
+        fill_c[new_own["group"].to_numpy()] = new_own["center"].to_numpy()
+        fill_s[new_own["group"].to_numpy()] = new_own["sigma"].to_numpy()
+        center_g = np.where(np.isnan(center_g), fill_c, center_g)
+        sigma_g = np.where(np.isnan(sigma_g), fill_s, sigma_g)
+    use_own = position > n_min
+    use_own &= (np.isfinite(sigma_g) & (sigma_g > 0))[gid]
+    # z = (x - center) / sigma on the unit's own baseline; Quesenberry Q with the frozen pooled
+    # sigma elsewhere (sum of x before the first row of this frame carried in).
+    center_out = center_g[gid]
+    sigma_out = sigma_g[gid]
+    z = x - center_out
+    with np.errstate(divide="ignore", invalid="ignore"):  # rows without an own sigma are replaced below
+        z /= sigma_out
+    q_rows = np.flatnonzero(~use_own)
+
+    def rows_of(a):
+        return a if np.isscalar(a) else a[q_rows]
+    q, q_center, q_scale = short_run.quesenberry_q(x, starts, sig_pool[q_rows], r0=rows_of(r0),
+                                                   sum0=rows_of(sum0 - tail_sum), seg=seg, rows=q_rows)
+    z[q_rows] = q
+    center_out[q_rows] = q_center
+    sigma_out[q_rows] = q_scale
+    del q, q_center, q_scale
     # Coarse (truncated) results tie often: cumulative-sum noise must not put a tie on one side.
-    z = np.round(z, 9)
-    if "z" in frame:
+    np.round(z, 9, out=z)
+    if has_old and "z" in frame:
         z = np.where(old, frame["z"].to_numpy(dtype=float, na_value=np.nan), z)
-    center_out = np.where(use_own, center, q_center)
-    sigma_out = np.where(use_own, sigma, q_scale)
-    source = pd.Categorical.from_codes(use_own.astype(np.int8), categories=["fleet_pooled", "unit"])
-    mr = moving_range(z, starts)
+    source = pd.Categorical.from_codes(use_own.view(np.int8), categories=["fleet_pooled", "unit"])
+    mr = moving_range(z, seg=seg)
     # Run rules on the standardised individuals (tail included for context).
-    events = apply_run_rules(z, starts, params["run_rules"]["set"], tuple(params["run_rules"]["rules"])).events
+    events = apply_run_rules(z, starts, params["run_rules"]["set"], tuple(params["run_rules"]["rules"]),
+                             seg=seg).events
     # CUSUM and EWMA over new rows only, from the carried state.
-    nm = ~old
-    zn = z[nm]
-    sn = _starts(frame.loc[nm])
-    first_new = np.flatnonzero(sn)
-    fk = pd.MultiIndex.from_frame(frame[KEY].iloc[np.flatnonzero(nm)[first_new]])
+    zn = of_new(z)
+    seg_n = Segments.from_starts(group_starts(gid[nm])) if has_old else seg
+    sn = seg_n.starts
+    first_new = seg_n.start_idx
+    fk = pd.MultiIndex.from_frame(frame[KEY].iloc[new_idx[first_new] if has_old else first_new]) \
+        if st is not None else None
+
     def init(col, default):
         if st is None:
             return np.full(len(first_new), default, dtype=float)
@@ -178,62 +212,63 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     has_state = init("n", 0.0) > 0
     cu0 = np.where(has_state, init("cusum_upper", 0.0), headstart)
     cl0 = np.where(has_state, init("cusum_lower", 0.0), headstart)
-    cus = tabular_cusum(zn, sn, k=k, h=h, init_upper=cu0, init_lower=cl0)
-    gn = np.cumsum(sn) - 1
-    run_u = changepoint.cusum_run_length(cus.upper, sn, init("cusum_upper_run", 0.0)[gn])
-    run_l = changepoint.cusum_run_length(cus.lower, sn, init("cusum_lower_run", 0.0)[gn])
-    ew = ewma(zn, sn, lam=lam, L=L, init=init("ewma", 0.0), count0=init("n", 0.0))
+    cus = tabular_cusum(zn, sn, k=k, h=h, init_upper=cu0, init_lower=cl0, seg=seg_n)
+    gn = seg_n.gid
+    run_u = changepoint.cusum_run_length(cus.upper, sn, None if st is None else init("cusum_upper_run", 0.0)[gn],
+                                         seg=seg_n)
+    run_l = changepoint.cusum_run_length(cus.lower, sn, None if st is None else init("cusum_lower_run", 0.0)[gn],
+                                         seg=seg_n)
+    ew = ewma(zn, sn, lam=lam, L=L, init=init("ewma", 0.0), count0=init("n", 0.0), seg=seg_n)
     mr_limit = mr_ucl_standardised()
-    nf = frame.loc[nm].reset_index(drop=True)
+    mr_new = of_new(mr)
     points = pd.DataFrame({
-        "check_id": nf["check_id"].to_numpy(), "instrument_id": unit_of(np.flatnonzero(nm)),
-        "level": nf["level"].to_numpy(), "baseline_period": nf["baseline_period"].to_numpy(),
-        "measured_at": nf["measured_at"].to_numpy(), "position": position[nm].astype(np.int64),
-        "relative_error": x[nm], "z": zn, "moving_range": mr[nm],
+        "check_id": of_new(frame["check_id"].to_numpy()), "instrument_id": unit_of(new_idx),
+        "level": of_new(frame["level"].to_numpy()), "baseline_period": of_new(frame["baseline_period"].to_numpy()),
+        "measured_at": of_new(frame["measured_at"].to_numpy()), "position": of_new(position).astype(np.int64),
+        "relative_error": of_new(x), "z": zn, "moving_range": mr_new,
         "cusum_upper": cus.upper, "cusum_lower": cus.lower, "ewma": ew.ewma, "ewma_lcl": ew.lcl, "ewma_ucl": ew.ucl,
-        "center": center_out[nm], "sigma": sigma_out[nm], "sigma_source": source[np.flatnonzero(nm)],
-        "ind_lcl": -3.0, "ind_ucl": 3.0, "mr_ucl": mr_limit,
+        "center": of_new(center_out), "sigma": of_new(sigma_out), "sigma_source": source[new_idx] if has_old else source,
         "cusum_upper_run": run_u, "cusum_lower_run": run_l}, copy=False)  # no block copy of 9 M rows
-    # Signals.
-    def prev_of(a, a0):
-        p = np.empty_like(a)
-        p[1:] = a[:-1]
-        p[first_new] = a0
-        return p
+    # Signals on crossings: beyond the limit now, not beyond it at the group's previous check
+    # (for a group's first new row: its carried state against the previous limit).
+    def crossed(above, above_before):
+        prev = np.empty_like(above)
+        prev[1:] = above[:-1]
+        prev[first_new] = above_before
+        return np.flatnonzero(above & ~prev)
     e0 = init("ewma", 0.0)
-    pe = prev_of(ew.ewma, e0)
     n0g = init("n", 0.0)
     prev_half = np.where(n0g > 0, L * np.sqrt(lam / (2 - lam) * (1 - (1 - lam) ** (2 * np.maximum(n0g, 1)))), np.inf)
-    prev_ucl = prev_of(ew.ucl, prev_half)
     sig_frames = []
-    base = points[["instrument_id", "level", "check_id", "measured_at", "position"]]
-    for stat, prev, side in ((cus.upper, prev_of(cus.upper, cu0), "up"), (cus.lower, prev_of(cus.lower, cl0), "down")):
-        hit = np.flatnonzero(crossings(stat, h, prev))
+    base = {c: points[c].array if c == "instrument_id" else points[c].to_numpy()
+            for c in ("instrument_id", "level", "check_id", "measured_at", "position")}
+    measured_new = base["measured_at"]
+    for stat, c0, side in ((cus.upper, cu0, "up"), (cus.lower, cl0, "down")):
+        hit = crossed(stat > h, c0 > h)
         run = (run_u if side == "up" else run_l)[hit]
         onset_row = hit - (run - 1)
         onset_ok = onset_row >= first_new[gn[hit]] if len(hit) else np.empty(0, bool)
-        onset_at = np.where(onset_ok, points["measured_at"].to_numpy()[np.maximum(onset_row, 0)],
-                            np.datetime64("NaT"))
-        sig_frames.append(base.iloc[hit].assign(chart="cusum", rule="h", direction=side, size=stat[hit],
-                                                onset_at=onset_at, onset_back=np.where(onset_ok, 0, run - 1)))
-    for side, sgn in (("up", 1.0), ("down", -1.0)):
-        stat = sgn * ew.ewma
-        hit = np.flatnonzero((stat > ew.ucl) & ~(sgn * pe > prev_ucl))
-        sig_frames.append(base.iloc[hit].assign(chart="ewma", rule="limit", direction=side, size=ew.ewma[hit],
-                                                onset_at=pd.NaT, onset_back=0))
-    mr_hit = np.flatnonzero(mr[nm] > mr_limit)
-    sig_frames.append(base.iloc[mr_hit].assign(chart="moving_range", rule="limit", direction="up",
-                                               size=mr[nm][mr_hit], onset_at=pd.NaT, onset_back=0))
+        onset_at = np.where(onset_ok, measured_new[np.maximum(onset_row, 0)], np.datetime64("NaT"))
+        sig_frames.append(signal_frame(base, hit, "cusum", "h", side, stat[hit], onset_at,
+                                       np.where(onset_ok, 0, run - 1)))
+    neg_ucl = np.negative(ew.ucl)
+    for side, above, above_before in (("up", ew.ewma > ew.ucl, e0 > prev_half),
+                                      ("down", ew.ewma < neg_ucl, -e0 > prev_half)):  # -e > ucl, exactly
+        hit = crossed(above, above_before)
+        sig_frames.append(signal_frame(base, hit, "ewma", "limit", side, ew.ewma[hit]))
+    del neg_ucl
+    mr_hit = np.flatnonzero(mr_new > mr_limit)
+    sig_frames.append(signal_frame(base, mr_hit, "moving_range", "limit", "up", mr_new[mr_hit]))
     if len(events):
-        new_row = np.cumsum(nm) - 1
-        ev = events[nm[events["row"].to_numpy()]]
-        rows = new_row[ev["row"].to_numpy()]
-        sig_frames.append(base.iloc[rows].assign(chart="individuals", rule=ev["rule"].to_numpy(),
-                                                 direction=ev["direction"].to_numpy(), size=zn[rows],
-                                                 onset_at=pd.NaT, onset_back=0))
+        ev_row = events["row"].to_numpy()
+        keep = nm[ev_row]
+        rows = (np.cumsum(nm) - 1)[ev_row[keep]] if has_old else ev_row
+        sig_frames.append(signal_frame(base, rows, "individuals", events["rule"].array[keep] if has_old else
+                                       events["rule"].array, events["direction"].array[keep] if has_old else
+                                       events["direction"].array, zn[rows]))
     signals = pd.concat(sig_frames, ignore_index=True)
     # Baselines frozen in this run: version 1 at each new segment's first check, version 2 own estimate.
-    first_rows = np.flatnonzero(starts & (position == 1) & ~old)
+    first_rows = seg.start_idx[(position[seg.start_idx] == 1) & ~old[seg.start_idx]]
     b1 = pd.DataFrame({"instrument_id": unit_of(first_rows),
                        "level": frame["level"].to_numpy()[first_rows],
                        "baseline_period": frame["baseline_period"].to_numpy()[first_rows], "version": 1,
@@ -243,7 +278,7 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
                        "last_check_id": frame["check_id"].to_numpy()[first_rows]})
     if len(new_own):
         r = new_own["row"].to_numpy(dtype=int)
-        g_first = np.flatnonzero(starts)[new_own["group"].to_numpy()]
+        g_first = seg.start_idx[new_own["group"].to_numpy()]
         b2 = pd.DataFrame({"instrument_id": unit_of(r), "level": frame["level"].to_numpy()[r],
                            "baseline_period": frame["baseline_period"].to_numpy()[r], "version": 2,
                            "frozen_at": frame["measured_at"].to_numpy()[r], "reason": "own_estimate",
@@ -255,8 +290,8 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     else:
         baselines = b1
     # New state: last row of each group.
-    last = np.flatnonzero(np.r_[sn[1:], True]) if len(zn) else np.empty(0, int)
-    add_sum = pd.Series(x[nm]).groupby(gn).sum().to_numpy() if len(zn) else np.empty(0)
+    last = seg_n.last_idx if len(zn) else np.empty(0, int)
+    add_sum = pd.Series(of_new(x)).groupby(gn).sum().to_numpy() if len(zn) else np.empty(0)
     new_state = pd.DataFrame({
         "instrument_id": points["instrument_id"].array[last], "level": points["level"].to_numpy()[last],
         "baseline_period": points["baseline_period"].to_numpy()[last],
@@ -264,8 +299,41 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
         "cusum_upper": cus.upper[last], "cusum_lower": cus.lower[last],
         "cusum_upper_run": run_u[last], "cusum_lower_run": run_l[last], "ewma": ew.ewma[last],
         "last_measured_at": points["measured_at"].to_numpy()[last], "last_check_id": points["check_id"].to_numpy()[last]})
-    return {"points": points, "signals": signals, "baselines": baselines, "state": new_state,
-            "check_type": frame["check_type"].array[np.flatnonzero(nm)]}
+    # The individuals and moving-range limits are the same for every point (z units): stored as
+    # constants rather than as three columns of millions of equal values.
+    return {"points": points, "limits": {"ind_lcl": -3.0, "ind_ucl": 3.0, "mr_ucl": mr_limit},
+            "signals": signals, "baselines": baselines, "state": new_state,
+            "check_type": frame["check_type"].array[new_idx] if has_old else frame["check_type"].array}
+
+
+# Names a signal row may carry, as categorical codes in name order (codes sort as the names do).
+SIGNAL_CHARTS = sorted(["cusum", "ewma", "individuals", "moving_range", "s", "xbar"])
+SIGNAL_RULES = sorted({"h", "limit"} | {name for rules in RULES.values() for name in rules})
+SIGNAL_DIRECTIONS = ["down", "up"]
+
+
+def _names(value, n: int, categories: list[str]) -> pd.Categorical:
+    if isinstance(value, str):
+        return pd.Categorical.from_codes(np.full(n, categories.index(value), dtype=np.int8), categories=categories)
+    if isinstance(value, pd.Categorical):
+        return value.set_categories(categories)
+    return pd.Categorical(np.asarray(value, dtype=object), categories=categories)
+
+
+def signal_frame(base: dict, rows: np.ndarray, chart: str, rule, direction, size: np.ndarray,
+                 onset_at: np.ndarray | None = None, onset_back: np.ndarray | int = 0) -> pd.DataFrame:
+    """Signal rows at `rows` of the per-check arrays in `base` (instrument_id, level, check_id,
+    measured_at, position); chart, rule and direction as categoricals with fixed categories."""
+    n = len(rows)
+    out = {c: v[rows] for c, v in base.items()}
+    out["chart"] = _names(chart, n, SIGNAL_CHARTS)
+    out["rule"] = _names(rule, n, SIGNAL_RULES)
+    out["direction"] = _names(direction, n, SIGNAL_DIRECTIONS)
+    out["size"] = np.asarray(size, dtype=float)
+    when = out["measured_at"].dtype
+    out["onset_at"] = np.full(n, np.datetime64("NaT"), dtype=when) if onset_at is None else np.asarray(onset_at, dtype=when)
+    out["onset_back"] = np.broadcast_to(np.asarray(onset_back, dtype=np.int64), (n,)).copy()
+    return pd.DataFrame(out)
 
 
 def read_chart_input(con: duckdb.DuckDBPyConnection, with_rebaselines: bool, through: int,
@@ -299,6 +367,18 @@ def read_chart_input(con: duckdb.DuckDBPyConnection, with_rebaselines: bool, thr
         "technology": cat(raw["technology_code"], names["_bf_technologies"]),
         "standard_kind": cat(raw["kind_code"], names["_bf_kinds"]),
         "baseline_period": raw["baseline_period"]}, copy=False)
+
+
+def _group_keys(new: pd.DataFrame) -> pd.DataFrame:
+    """The chart groups (KEY) of checks sorted by KEY, in order."""
+    return new[KEY].iloc[np.flatnonzero(_starts(new))].reset_index(drop=True)
+
+
+def _sort_codes(col: pd.Series) -> np.ndarray:
+    """Integer codes in the order pandas sorts the column: category order, else value order."""
+    if isinstance(col.dtype, pd.CategoricalDtype):
+        return col.cat.codes.to_numpy()
+    return pd.factorize(col, sort=True)[0]
 
 
 def _load_state(con, keys: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
@@ -347,8 +427,7 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
     recharge = {r[0] for r in con.execute("SELECT DISTINCT instrument_id FROM chart_rebaselines WHERE recorded_at >= $t",
                                           {"t": last_run_at or datetime(1900, 1, 1)}).fetchall()}
     new = read_chart_input(con, with_rb, through, recharge)
-    keys = new[KEY].drop_duplicates().reset_index(drop=True)
-    state, own, tail = _load_state(con, keys)
+    state, own, tail = _load_state(con, _group_keys(new))
     if len(state):
         late = new.merge(state[KEY + ["last_measured_at"]], on=KEY)
         late = late.loc[late["measured_at"] < late["last_measured_at"], KEY].drop_duplicates()
@@ -365,13 +444,13 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
                 con.unregister("_bf_late")
             recharge |= set(late["instrument_id"].astype(str))
             new = read_chart_input(con, with_rb, through, recharge)
-            keys = new[KEY].drop_duplicates().reset_index(drop=True)
-            state, own, tail = _load_state(con, keys)
+            state, own, tail = _load_state(con, _group_keys(new))
     pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
     missing = np.isnan(pooled_lookup(new, pooled))
     if missing.any():
         sub = new[missing] if not missing.all() else new
-        sub = sub.assign(gid=_starts(sub).cumsum())
+        sub = pd.DataFrame({c: sub[c].array for c in ("technology", "standard_kind", "level", "relative_error")}
+                           | {"gid": _starts(sub).cumsum()}, copy=False)
         fresh = pooled_sigma(sub).assign(frozen_at=started, method=POOLED_METHOD)
         con.execute("INSERT INTO chart_pooled_sigma SELECT technology, standard_kind, level, sigma, n_pairs, "
                     "frozen_at, method FROM fresh")
@@ -379,33 +458,39 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
     t_read = time.perf_counter() - t0
     out = compute_charts(new, tail, state, own, pooled, params)
     window = settings.charts.replicate_window_minutes
-    typed = out["points"][["check_id", "instrument_id", "level", "measured_at", "z", "position"]].assign(
-        check_type=out["check_type"])
-    groups = xbar_s_groups(typed, window)
+    pts = out["points"]
+    typed = pd.DataFrame({c: pts[c].array for c in ("check_id", "instrument_id", "level", "measured_at", "z")}
+                         | {"check_type": out["check_type"]}, copy=False)
+    groups, group_rows = xbar_s_groups(typed, window, with_rows=True)
     extra = []
     if len(groups):
-        pos = typed.set_index("check_id")["position"]
+        base = {"instrument_id": groups["instrument_id"].array, "level": groups["level"].to_numpy(),
+                "check_id": groups["check_id"].to_numpy(), "measured_at": groups["measured_at"].to_numpy(),
+                "position": pts["position"].to_numpy()[group_rows]}
         for chart, stat, lo, hi in (("xbar", "xbar", "xbar_lcl", "xbar_ucl"), ("s", "s", "s_lcl", "s_ucl")):
-            hit = groups[(groups[stat] > groups[hi]) | (groups[stat] < groups[lo])]
+            value = groups[stat].to_numpy(dtype=float)
+            hit = np.flatnonzero((value > groups[hi].to_numpy()) | (value < groups[lo].to_numpy()))
             if len(hit):
-                extra.append(hit[["instrument_id", "level", "check_id", "measured_at"]].assign(
-                    position=pos.reindex(hit["check_id"]).to_numpy(), chart=chart, rule="limit",
-                    direction=np.where(hit[stat] > hit[hi], "up", "down"), size=hit[stat].to_numpy(),
-                    onset_at=pd.NaT, onset_back=0))
+                extra.append(signal_frame(base, hit, chart, "limit",
+                                          np.where(value[hit] > groups[hi].to_numpy()[hit], "up", "down"), value[hit]))
     sig = pd.concat([out["signals"], *extra], ignore_index=True) if extra else out["signals"]
     t_compute = time.perf_counter() - t0 - t_read
-    ver = new[new["check_type"] == "verification"]
-    lin = fit_linearity(ver[["instrument_id", "measured_at", "expected", "measured", "level"]],
-                        settings.charts.verification_window_minutes)
+    ver = new.loc[(new["check_type"] == "verification").to_numpy(),
+                  ["instrument_id", "measured_at", "expected", "measured", "level"]]
+    lin = fit_linearity(ver, settings.charts.verification_window_minutes)
     run_id = int(con.execute("SELECT coalesce(max(run_id), 0) + 1 FROM chart_runs").fetchall()[0][0])
     if len(sig):
         cs = settings.charts
-        sig = sig.sort_values(["measured_at", "instrument_id", "level", "chart", "rule"], kind="stable").reset_index(drop=True)
+        # Signals in time order, then unit, level, chart and rule (names sort by their categorical codes).
+        codes = {c: _sort_codes(sig[c]) for c in ("instrument_id", "level", "chart", "rule", "direction")}
+        when = sig["measured_at"].to_numpy().astype(np.int64)
+        by = np.lexsort((codes["rule"], codes["chart"], codes["level"], codes["instrument_id"], when))
+        sig = sig.take(by).reset_index(drop=True)
         # Run length of each signal: checks since the previous signal of the same chart, rule and
         # side in this run (or since the segment began), the in-control run length it is tested on.
         sig["position"] = sig["position"].fillna(1).astype(np.int64)
         position = sig["position"].to_numpy()
-        series = [pd.factorize(sig[c], sort=True)[0] for c in ("instrument_id", "level", "chart", "rule", "direction")]
+        series = [codes[c][by] for c in ("instrument_id", "level", "chart", "rule", "direction")]
         order = np.lexsort([position] + series[::-1])
         same = np.zeros(len(order), dtype=bool)
         same[1:] = np.logical_and.reduce([c[order][1:] == c[order][:-1] for c in series])
@@ -436,7 +521,8 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
     pts = out["points"]
     with transaction(con):
         con.register("_bf_points", pa.Table.from_pandas(pts, preserve_index=False))  # Arrow: no copy
-        con.execute("INSERT INTO chart_points BY NAME SELECT * FROM _bf_points")
+        con.execute("INSERT INTO chart_points BY NAME SELECT *, $ind_lcl AS ind_lcl, $ind_ucl AS ind_ucl, "
+                    "$mr_ucl AS mr_ucl FROM _bf_points", out["limits"])
         con.unregister("_bf_points")
         con.register("_bf_state", st)
         con.execute("DELETE FROM chart_state t USING _bf_state s WHERE t.instrument_id = s.instrument_id "

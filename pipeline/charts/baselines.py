@@ -17,7 +17,8 @@ import numpy as np
 import pandas as pd
 
 from pipeline.charts.constants import shewhart_constants
-from pipeline.charts.grouping import group_starts, grouped_lag
+from pipeline.charts.grouping import Segments, group_starts, key_codes
+from pipeline.charts.individuals import moving_range
 
 POOLED_METHOD = "pooled MR-bar / d2(2) over consecutive checks of each unit segment (Montgomery 6.4)"
 
@@ -29,16 +30,18 @@ def pooled_sigma(frame: pd.DataFrame, min_pairs: int = 30) -> pd.DataFrame:
     Returns one row per key: technology, standard_kind, level, sigma, n_pairs. Keys with fewer than
     `min_pairs` moving ranges take the median sigma of their technology (or of the fleet).
     """
-    starts = group_starts(frame["gid"].to_numpy())
+    key = ["technology", "standard_kind", "level"]
     x = frame["relative_error"].to_numpy(dtype=float)
-    mr = np.abs(x - grouped_lag(x, starts, 1))
+    mr = moving_range(x, group_starts(frame["gid"].to_numpy()))
     d2 = shewhart_constants(2).d2
-    tmp = frame[["technology", "standard_kind", "level"]].assign(mr=mr).dropna(subset=["mr"])
-    out = (tmp.groupby(["technology", "standard_kind", "level"], as_index=False)
-           .agg(mr_bar=("mr", "mean"), n_pairs=("mr", "size")))
+    # One integer code per (technology, standard kind, level), numbered in order of appearance.
+    code, first_row = key_codes(frame, key)
+    agg = pd.Series(mr).groupby(code).agg(["mean", "count"])  # both skip the NaN first moving ranges
+    keys = frame[key].iloc[first_row].reset_index(drop=True)
+    counted = np.arange(len(keys))[~keys.isna().any(axis=1).to_numpy()]  # a key with a missing part has no pairs
+    out = keys.assign(mr_bar=agg["mean"].reindex(counted).reindex(np.arange(len(keys))).to_numpy(),
+                      n_pairs=agg["count"].reindex(counted).reindex(np.arange(len(keys))).to_numpy())
     out["sigma"] = out["mr_bar"] / d2
-    keys = frame[["technology", "standard_kind", "level"]].drop_duplicates()
-    out = keys.merge(out, how="left", on=["technology", "standard_kind", "level"])
     out["n_pairs"] = out["n_pairs"].fillna(0).astype("int64")
     good = out[(out["n_pairs"] >= min_pairs) & (out["sigma"] > 0)]
     fleet = float(good["sigma"].median()) if len(good) else 0.02
@@ -49,15 +52,19 @@ def pooled_sigma(frame: pd.DataFrame, min_pairs: int = 30) -> pd.DataFrame:
     return out[["technology", "standard_kind", "level", "sigma", "n_pairs"]].reset_index(drop=True)
 
 
-def own_estimates(x: np.ndarray, starts: np.ndarray, pos: np.ndarray, n_min: int) -> pd.DataFrame:
+def own_estimates(x: np.ndarray, starts: np.ndarray, pos: np.ndarray, n_min: int, *,
+                  seg: Segments | None = None) -> pd.DataFrame:
     """The unit's own centre and sigma from the first n_min checks of each group that has them.
 
+    pos: 0-based check number in the segment (counting checks charted before these rows);
+    seg: Segments.from_starts(starts), when the caller has it already.
     Returns rows: group (0-based group number), center, sigma (MR-bar / d2), row of the n_min-th check.
     Source: Montgomery 6.4, individuals chart phase I estimates.
     """
-    gid = np.cumsum(starts) - 1
-    first = pos < n_min
-    mr = np.abs(x - grouped_lag(x, starts, 1))
+    seg = Segments.from_starts(starts) if seg is None else seg
+    gid = seg.gid
+    first = np.flatnonzero(pos < n_min)
+    mr = moving_range(x, seg=seg)
     df = pd.DataFrame({"g": gid[first], "x": x[first], "mr": mr[first]})
     agg = df.groupby("g").agg(n=("x", "size"), center=("x", "mean"), mr_bar=("mr", "mean"))
     agg = agg[agg["n"] >= n_min]

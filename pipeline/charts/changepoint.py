@@ -13,22 +13,29 @@ from __future__ import annotations
 
 import numpy as np
 
-from pipeline.charts.grouping import grouped_last_true, position_in_group
+from pipeline.charts.grouping import Segments
 
 METHOD = "Page (1954) last-zero estimator (Montgomery's N+/N- counter)"
 
 
-def cusum_run_length(statistic: np.ndarray, starts: np.ndarray, carried: np.ndarray | None = None) -> np.ndarray:
+def cusum_run_length(statistic: np.ndarray, starts: np.ndarray, carried: np.ndarray | None = None, *,
+                     seg: Segments | None = None) -> np.ndarray:
     """N: number of consecutive checks, ending at each row, with the CUSUM side above zero.
 
     `carried` is the count carried in from earlier data, per row of its group (0 if None).
     Onset of a change = the check N-1 rows before the alarm (the first check of the positive run).
+    seg: Segments.from_starts(starts), when the caller has it already.
     """
     statistic = np.asarray(statistic, dtype=float)
-    zero = statistic <= 0.0
-    last_zero = grouped_last_true(zero, starts)
+    seg = Segments.from_starts(starts) if seg is None else seg
+    # N = row - (last zero row of the group), or position + 1 (+ carried) before the group's first
+    # zero, i.e. row - max(last zero row, first row - 1): one running maximum, written in place.
     idx = np.arange(len(statistic))
-    pos = position_in_group(starts)
-    first = idx - pos
-    carried = np.zeros(len(statistic)) if carried is None else np.asarray(carried, dtype=float)
-    return np.where(last_zero >= 0, idx - last_zero, idx - first + 1 + carried).astype(np.int64)
+    last = np.where(statistic <= 0.0, idx, -1)
+    np.maximum.accumulate(last, out=last)
+    none_yet = last < seg.first if carried is not None else None
+    np.maximum(last, seg.first - 1, out=last)
+    np.subtract(idx, last, out=last)
+    if carried is None:
+        return last
+    return (last + np.where(none_yet, np.asarray(carried, dtype=float), 0.0)).astype(np.int64)

@@ -15,7 +15,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from pipeline.charts.grouping import group_index, grouped_cummin, grouped_cumsum
+from pipeline.charts.grouping import Segments, grouped_cummin, grouped_cumsum
 
 
 @dataclass(frozen=True)
@@ -29,16 +29,22 @@ class CusumResult:
     headstart: float
 
 
-def _one_side(x: np.ndarray, starts: np.ndarray, k: float, init: np.ndarray) -> np.ndarray:
-    s = grouped_cumsum(x - k, starts)
-    run_min = grouped_cummin(s, starts)
-    floor = np.minimum(run_min, -init)
-    return np.maximum(s - floor, 0.0)
+def _one_side(x: np.ndarray, seg: Segments, k: float, init: np.ndarray, sign: float) -> np.ndarray:
+    """max(0, S - min(running min of S, -init)) with S the grouped cumulative sum of sign x - k.
+
+    Written in place: at fleet scale every temporary array costs more than the arithmetic."""
+    v = np.negative(x) if sign < 0 else x.copy()
+    v -= k
+    s = grouped_cumsum(v, seg.starts, seg=seg, overwrite=True)
+    floor = np.negative(init)[seg.gid]
+    np.minimum(grouped_cummin(s, seg.starts, seg=seg), floor, out=floor)
+    s -= floor
+    return np.maximum(s, 0.0, out=s)
 
 
 def tabular_cusum(z: np.ndarray, starts: np.ndarray | None = None, *, k: float = 0.5, h: float = 5.0,
                   headstart: float = 0.0, init_upper: np.ndarray | float | None = None,
-                  init_lower: np.ndarray | float | None = None) -> CusumResult:
+                  init_lower: np.ndarray | float | None = None, seg: Segments | None = None) -> CusumResult:
     """Two-sided tabular CUSUM of standardised values, restarting at each group.
 
     Parameters:
@@ -47,6 +53,7 @@ def tabular_cusum(z: np.ndarray, starts: np.ndarray | None = None, *, k: float =
         k, h: reference value and decision interval in sigma units.
         headstart: FIR starting value (sigma units) for groups without `init_*`.
         init_upper, init_lower: per-group (or scalar) values carried in from earlier data.
+        seg: Segments.from_starts(starts), when the caller has it already.
     Returns:
         CusumResult with C+ and C- per row.
     """
@@ -55,16 +62,14 @@ def tabular_cusum(z: np.ndarray, starts: np.ndarray | None = None, *, k: float =
         starts = np.zeros(len(z), dtype=bool)
         if len(z):
             starts[0] = True
-    gid = group_index(starts)
-    n_groups = int(gid[-1]) + 1 if len(z) else 0
+    seg = Segments.from_starts(starts) if seg is None else seg
+    n_groups = seg.n_groups
 
     def _init(value):
         if value is None:
             return np.full(n_groups, float(headstart))
         return np.broadcast_to(np.asarray(value, dtype=float), (n_groups,))
 
-    up0 = _init(init_upper)[gid] if len(z) else np.empty(0)
-    lo0 = _init(init_lower)[gid] if len(z) else np.empty(0)
-    upper = _one_side(z, starts, k, up0)
-    lower = _one_side(-z, starts, k, lo0)
+    upper = _one_side(z, seg, k, _init(init_upper), 1.0)
+    lower = _one_side(z, seg, k, _init(init_lower), -1.0)
     return CusumResult(upper=upper, lower=lower, k=k, h=h, headstart=headstart)

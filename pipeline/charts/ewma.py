@@ -17,7 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.signal import lfilter
 
-from pipeline.charts.grouping import group_index, position_in_group
+from pipeline.charts.grouping import Segments
 
 
 @dataclass(frozen=True)
@@ -37,9 +37,17 @@ def ewma_limits_halfwidth(i: np.ndarray, lam: float, L: float, sigma: float = 1.
     return L * sigma * np.sqrt(lam / (2.0 - lam) * (1.0 - (1.0 - lam) ** (2.0 * i)))
 
 
+def _by_count(f, i: np.ndarray) -> np.ndarray:
+    """f(i) for many whole-number counts i >= 0: evaluated once per distinct count and looked up."""
+    top = int(i.max()) if len(i) else 0
+    if len(i) < 4 * (top + 1):
+        return f(i)
+    return f(np.arange(top + 1, dtype=float))[i if i.dtype.kind in "iu" else i.astype(np.int64)]
+
+
 def ewma(z: np.ndarray, starts: np.ndarray | None = None, *, lam: float, L: float,
          init: np.ndarray | float = 0.0, count0: np.ndarray | float = 0.0,
-         center: float = 0.0, sigma: float = 1.0) -> EwmaResult:
+         center: float = 0.0, sigma: float = 1.0, seg: Segments | None = None) -> EwmaResult:
     """EWMA restarting at each group, with exact limits.
 
     Parameters:
@@ -49,6 +57,7 @@ def ewma(z: np.ndarray, starts: np.ndarray | None = None, *, lam: float, L: floa
         init: per-group (or scalar) EWMA value before the group's first row (the target at start).
         count0: points already charted in the group before these rows (for the limits).
         center, sigma: target and sigma of z (0 and 1 for standardised data).
+        seg: Segments.from_starts(starts), when the caller has it already.
     """
     z = np.asarray(z, dtype=float)
     n = len(z)
@@ -59,15 +68,28 @@ def ewma(z: np.ndarray, starts: np.ndarray | None = None, *, lam: float, L: floa
     if n == 0:
         empty = np.empty(0)
         return EwmaResult(empty, empty, empty, lam, L)
-    gid = group_index(starts)
-    n_groups = int(gid[-1]) + 1
-    e0 = np.broadcast_to(np.asarray(init, dtype=float), (n_groups,))[gid]
-    c0 = np.broadcast_to(np.asarray(count0, dtype=float), (n_groups,))[gid]
-    y = lfilter([lam], [1.0, -(1.0 - lam)], z)
-    start_idx = np.flatnonzero(starts)
-    prev = np.where(start_idx > 0, y[np.maximum(start_idx - 1, 0)], 0.0)
-    pos = position_in_group(starts) + 1
-    decay = (1.0 - lam) ** pos
-    out = y + decay * (e0 - prev[gid])
-    half = ewma_limits_halfwidth(c0 + pos, lam, L, sigma)
+    seg = Segments.from_starts(starts) if seg is None else seg
+    gid = seg.gid
+    n_groups = seg.n_groups
+    e0 = np.broadcast_to(np.asarray(init, dtype=float), (n_groups,))
+    c0 = np.broadcast_to(np.asarray(count0, dtype=float), (n_groups,))
+    out = lfilter([lam], [1.0, -(1.0 - lam)], z)
+    start_idx = seg.start_idx
+    prev = np.where(start_idx > 0, out[np.maximum(start_idx - 1, 0)], 0.0)
+    pos = seg.pos + 1
+    # Powers of (1 - lam) depend only on whole-number counts: computed once per count, then looked
+    # up; the correction out += decay (e0 - prev) is written in place.
+    carry = (e0 - prev)[gid]
+    carry *= _by_count(lambda p: (1.0 - lam) ** p, pos)
+    out += carry
+    if not c0.any():
+        count = pos
+    else:
+        count = c0[gid]
+        count += pos
+    whole = np.array_equal(c0, np.floor(c0)) and (not len(c0) or c0.min() >= 0)
+    half = (_by_count(lambda i: ewma_limits_halfwidth(i, lam, L, sigma), count) if whole
+            else ewma_limits_halfwidth(count, lam, L, sigma))
+    if center == 0.0:  # 0 - half and 0 + half are exactly -half and half
+        return EwmaResult(ewma=out, lcl=np.negative(half), ucl=half, lam=lam, L=L)
     return EwmaResult(ewma=out, lcl=center - half, ucl=center + half, lam=lam, L=L)

@@ -6,7 +6,49 @@ group is one unit, level and baseline segment. `starts` marks the first row of e
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
+import pandas as pd
+
+
+@dataclass(frozen=True)
+class Segments:
+    """The group structure of a sorted array, computed once and shared by every statistic.
+
+    starts: True at each group's first row; start_idx: those rows; gid: 0-based group number of
+    each row; first: the first row of each row's group; pos: 0-based position inside the group.
+    """
+
+    starts: np.ndarray
+    start_idx: np.ndarray
+    gid: np.ndarray
+    first: np.ndarray
+    pos: np.ndarray
+
+    @classmethod
+    def from_starts(cls, starts: np.ndarray) -> Segments:
+        starts = np.asarray(starts, dtype=bool)
+        n = len(starts)
+        if n and not starts[0]:  # the first row always begins a group
+            starts = starts.copy()
+            starts[0] = True
+        start_idx = np.flatnonzero(starts)
+        lengths = np.diff(np.append(start_idx, n))
+        gid = np.repeat(np.arange(len(start_idx)), lengths)
+        first = np.repeat(start_idx, lengths)
+        pos = np.arange(n)
+        pos -= first  # in place: at fleet scale every temporary array costs more than the arithmetic
+        return cls(starts=starts, start_idx=start_idx, gid=gid, first=first, pos=pos)
+
+    @property
+    def n_groups(self) -> int:
+        return len(self.start_idx)
+
+    @property
+    def last_idx(self) -> np.ndarray:
+        """The last row of each group."""
+        return np.append(self.start_idx[1:], len(self.starts)) - 1
 
 
 def group_starts(codes: np.ndarray) -> np.ndarray:
@@ -30,27 +72,37 @@ def position_in_group(starts: np.ndarray) -> np.ndarray:
     return idx - first
 
 
-def grouped_cumsum(values: np.ndarray, starts: np.ndarray) -> np.ndarray:
-    """Cumulative sum restarting at each group (difference of one global cumulative sum)."""
+def grouped_cumsum(values: np.ndarray, starts: np.ndarray, *, seg: Segments | None = None,
+                   overwrite: bool = False) -> np.ndarray:
+    """Cumulative sum restarting at each group (difference of one global cumulative sum).
+
+    seg: Segments.from_starts(starts), when the caller has it already; overwrite: the result may
+    be written into `values` (a float array the caller no longer needs)."""
     values = np.asarray(values, dtype=float)
-    total = np.cumsum(values)
-    before = np.where(starts, total - values, 0.0)
-    offset = np.maximum.accumulate(np.where(starts, np.arange(len(values)), 0))
-    return total - before[offset]
+    if not len(values):
+        return np.cumsum(values)
+    seg = Segments.from_starts(starts) if seg is None else seg
+    head = values[seg.start_idx]
+    total = np.cumsum(values, out=values if overwrite else None)
+    before = total[seg.start_idx] - head  # the global sum before each group
+    total -= before[seg.gid]
+    return total
 
 
-def grouped_cummin(values: np.ndarray, starts: np.ndarray) -> np.ndarray:
-    """Running minimum restarting at each group."""
-    import pandas as pd
+def grouped_cummin(values: np.ndarray, starts: np.ndarray, *, seg: Segments | None = None) -> np.ndarray:
+    """Running minimum restarting at each group (pandas' Cython grouped cummin).
 
-    gid = group_index(starts)
-    return pd.Series(np.asarray(values, dtype=float)).groupby(gid).cummin().to_numpy()
+    seg: Segments.from_starts(starts), when the caller has it already."""
+    gid = group_index(starts) if seg is None else seg.gid
+    return pd.Series(np.asarray(values, dtype=float)).groupby(gid, sort=False).cummin().to_numpy()
 
 
-def grouped_last_true(flags: np.ndarray, starts: np.ndarray) -> np.ndarray:
-    """Index of the latest row at or before each row (same group) where flags is True; -1 if none."""
+def grouped_last_true(flags: np.ndarray, starts: np.ndarray, *, seg: Segments | None = None) -> np.ndarray:
+    """Index of the latest row at or before each row (same group) where flags is True; -1 if none.
+
+    seg: Segments.from_starts(starts), when the caller has it already."""
     idx = np.arange(len(flags))
-    first = np.maximum.accumulate(np.where(starts, idx, 0))
+    first = np.maximum.accumulate(np.where(starts, idx, 0)) if seg is None else seg.first
     last = np.maximum.accumulate(np.where(flags, idx, -1))
     return np.where(last >= first, last, -1)
 
@@ -82,3 +134,30 @@ def grouped_rolling_sum(flags: np.ndarray, starts: np.ndarray, window: int, *,
     out = c[idx + 1] - c[lo]
     pos = position_in_group(starts) if pos is None else pos
     return np.where(pos >= window - 1, out, np.nan)
+
+
+def key_codes(frame: pd.DataFrame, columns: list[str]) -> tuple[np.ndarray, np.ndarray]:
+    """Integer code per row of the key `columns` (missing values are a value), numbered in order of
+    first appearance, and the first row of each code. Categorical columns use their codes."""
+    n = len(frame)
+    if not n:
+        return np.empty(0, dtype=np.int64), np.empty(0, dtype=np.int64)
+    # Rows of sorted frames come in long runs of one key: find the runs, number the keys of the
+    # runs' first rows (a small table), and spread the numbers over the runs.
+    values = []
+    change = np.zeros(n, dtype=bool)
+    change[0] = True
+    for c in columns:
+        col = frame[c]
+        v = col.cat.codes.to_numpy() if isinstance(col.dtype, pd.CategoricalDtype) else col.to_numpy()
+        change[1:] |= v[1:] != v[:-1]
+        values.append(v)
+    run = np.flatnonzero(change)
+    code_run = np.zeros(len(run), dtype=np.int64)
+    for v in values:
+        part, uniq = pd.factorize(v[run], use_na_sentinel=False)
+        code_run = code_run * len(uniq) + part
+    code_run, uniq = pd.factorize(code_run)  # numbered in order of first appearance
+    first_row = np.full(len(uniq), n, dtype=np.int64)
+    np.minimum.at(first_row, code_run, run)
+    return np.repeat(code_run, np.diff(np.append(run, n))), first_row

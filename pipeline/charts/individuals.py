@@ -11,7 +11,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from pipeline.charts.constants import shewhart_constants
-from pipeline.charts.grouping import grouped_lag
+from pipeline.charts.grouping import Segments
 
 
 @dataclass(frozen=True)
@@ -28,14 +28,22 @@ class IndividualsLimits:
     method: str = "sigma = MR-bar / d2(2); X limits center +/- 3 sigma; MR UCL = D4(2) MR-bar"
 
 
-def moving_range(x: np.ndarray, starts: np.ndarray | None = None) -> np.ndarray:
-    """|x_i - x_{i-1}| inside each group; NaN at each group's first row."""
+def moving_range(x: np.ndarray, starts: np.ndarray | None = None, *, seg: Segments | None = None) -> np.ndarray:
+    """|x_i - x_{i-1}| inside each group; NaN at each group's first row.
+
+    seg: Segments.from_starts(starts), when the caller has it already."""
     x = np.asarray(x, dtype=float)
-    if starts is None:
-        starts = np.zeros(len(x), dtype=bool)
-        if len(x):
-            starts[0] = True
-    return np.abs(x - grouped_lag(x, starts, 1))
+    out = np.empty(len(x))
+    if not len(x):
+        return out
+    np.subtract(x[1:], x[:-1], out=out[1:])
+    np.abs(out, out=out)
+    out[0] = np.nan
+    if seg is not None:
+        out[seg.start_idx] = np.nan
+    elif starts is not None:
+        out[np.asarray(starts, dtype=bool)] = np.nan
+    return out
 
 
 def individuals_limits(x: np.ndarray, width: float = 3.0) -> IndividualsLimits:

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from pipeline.charts.grouping import grouped_lag, grouped_rolling_sum, position_in_group
+from pipeline.charts.grouping import Segments, grouped_lag
 
 # rule name -> (description, window)
 RULES: dict[str, dict[str, tuple[str, int]]] = {
@@ -43,7 +43,7 @@ RULES: dict[str, dict[str, tuple[str, int]]] = {
 class RuleEvents:
     """Run-rule events: one row per (row index, rule) with direction ('up'/'down')."""
 
-    events: pd.DataFrame  # columns: row, rule, rule_set, direction, description
+    events: pd.DataFrame  # columns: row, rule, rule_set, direction, description (names categorical)
     rule_set: str
     rules: tuple[str, ...]
 
@@ -61,20 +61,46 @@ def select_rules(rule_set: str, rules: tuple[str, ...] | None = None) -> tuple[s
     return tuple(rules)
 
 
-def _rule_hits(name: str, z: np.ndarray, starts: np.ndarray, pos: np.ndarray) -> list[tuple[np.ndarray, str]]:
-    def _count(flags, starts, w):
-        return grouped_rolling_sum(flags, starts, w, pos=pos)
+class _WindowCounter:
+    """Counts of True flags in the last `window` rows of each group, reusing two work arrays.
 
-    up, down = z > 0, z < 0
+    At fleet scale a fresh array costs more than the arithmetic on it, so every count of a run
+    writes into the same buffers (a count is used before the next one is made)."""
+
+    def __init__(self, pos: np.ndarray):
+        self.pos = pos
+        self.running = np.empty(len(pos), dtype=np.int32)
+        self.count = np.empty(len(pos), dtype=np.int32)
+        self.short: dict[int, np.ndarray] = {}
+
+    def __call__(self, flags: np.ndarray, window: int) -> np.ndarray:
+        """Counts (int32, valid until the next call); -1 where the group has fewer than `window` rows."""
+        c, out = self.running, self.count
+        np.cumsum(flags, dtype=np.int32, out=c)
+        out[:window] = c[:window]
+        np.subtract(c[window:], c[:-window], out=out[window:])
+        if window not in self.short:
+            self.short[window] = self.pos < window - 1
+        out[self.short[window]] = -1
+        return out
+
+
+def _rule_hits(name: str, z: np.ndarray, starts: np.ndarray, pos: np.ndarray,
+               counter: _WindowCounter | None = None) -> list[tuple[np.ndarray, str]]:
+    counter = _WindowCounter(pos) if counter is None else counter
+
+    def _count(flags, starts, w):
+        return counter(flags, w)
+
+    if name in ("WE4", "N2"):
+        w = 8 if name == "WE4" else 9
+        return [(_count(z > 0, starts, w) == w, "up"), (_count(z < 0, starts, w) == w, "down")]
     if name in ("WE1", "N1"):
         return [(z > 3, "up"), (z < -3, "down")]
     if name in ("WE2", "N5"):
         return [(_count(z > 2, starts, 3) >= 2, "up"), (_count(z < -2, starts, 3) >= 2, "down")]
     if name in ("WE3", "N6"):
         return [(_count(z > 1, starts, 5) >= 4, "up"), (_count(z < -1, starts, 5) >= 4, "down")]
-    if name in ("WE4", "N2"):
-        w = 8 if name == "WE4" else 9
-        return [(_count(up, starts, w) == w, "up"), (_count(down, starts, w) == w, "down")]
     d = z - grouped_lag(z, starts, 1, pos=pos)
     if name == "N3":
         return [(_count(d > 0, starts, 5) == 5, "up"), (_count(d < 0, starts, 5) == 5, "down")]
@@ -89,7 +115,8 @@ def _rule_hits(name: str, z: np.ndarray, starts: np.ndarray, pos: np.ndarray) ->
 
 
 def apply_run_rules(z: np.ndarray, starts: np.ndarray | None = None, rule_set: str = "western_electric",
-                    rules: tuple[str, ...] | None = None, *, only_onset: bool = True) -> RuleEvents:
+                    rules: tuple[str, ...] | None = None, *, only_onset: bool = True,
+                    seg: Segments | None = None) -> RuleEvents:
     """Evaluate run rules on standardised Shewhart values, restarting at each group.
 
     Parameters:
@@ -97,28 +124,51 @@ def apply_run_rules(z: np.ndarray, starts: np.ndarray | None = None, rule_set: s
         starts: True at each group's first row (None: one group).
         rule_set: 'western_electric' or 'nelson'; rules: subset of its rule names.
         only_onset: report a rule only where it becomes true (not again while it stays true).
+        seg: Segments.from_starts(starts), when the caller has it already.
     Returns:
         RuleEvents; `row` indexes into z. N4 and N7, N8 report direction 'up' by convention
         (they have no side); N7 signals stratification (reduced variation).
     """
     names = select_rules(rule_set, rules)
     z = np.asarray(z, dtype=float)
-    if starts is None:
-        starts = np.zeros(len(z), dtype=bool)
-        if len(z):
-            starts[0] = True
-    frames = []
-    pos = position_in_group(starts)
-    for name in names:
-        for hit, direction in _rule_hits(name, z, starts, pos):
-            hit = np.nan_to_num(np.asarray(hit, dtype=float)) > 0
-            if only_onset:
-                prev = grouped_lag(hit.astype(float), starts, 1, fill=0.0, pos=pos) > 0
+    if seg is None:
+        if starts is None:
+            starts = np.zeros(len(z), dtype=bool)
+            if len(z):
+                starts[0] = True
+        seg = Segments.from_starts(starts)
+    starts, pos = seg.starts, seg.pos
+    rows, rule_no, side = [], [], []
+    counter = _WindowCounter(pos)
+    for j, name in enumerate(names):
+        for hit, direction in _rule_hits(name, z, starts, pos, counter):
+            hit = np.asarray(hit, dtype=bool)
+            if only_onset and len(hit):  # not where the rule was already true at the group's previous row
+                prev = np.empty_like(hit)
+                prev[0] = False
+                prev[1:] = hit[:-1]
+                prev[seg.start_idx] = False
                 hit = hit & ~prev
-            rows = np.flatnonzero(hit)
-            if len(rows):
-                frames.append(pd.DataFrame({"row": rows, "rule": name, "rule_set": rule_set,
-                                            "direction": direction, "description": RULES[rule_set][name][0]}))
-    events = (pd.concat(frames, ignore_index=True).sort_values(["row", "rule"], kind="stable").reset_index(drop=True)
-              if frames else pd.DataFrame(columns=["row", "rule", "rule_set", "direction", "description"]))
+            r = np.flatnonzero(hit)
+            rows.append(r)
+            rule_no.append(np.full(len(r), j, dtype=np.int16))
+            side.append(np.full(len(r), direction == "up", dtype=bool))
+    row = np.concatenate(rows) if rows else np.empty(0, dtype=np.int64)
+    rule_no = np.concatenate(rule_no) if rule_no else np.empty(0, dtype=np.int16)
+    up = np.concatenate(side) if side else np.empty(0, dtype=bool)
+    # Events by row, then rule name; equal keys keep the order found (lexsort is stable).
+    # Names are categorical, their categories in name order (codes sort as the names do).
+    rule_cats = sorted(names)
+    rank = np.array([rule_cats.index(n) for n in names], dtype=np.int16)
+    rule_code = rank[rule_no]
+    order = np.lexsort((rule_code, row))
+    row, rule_code, up = row[order], rule_code[order], up[order]
+    desc_cats = sorted({RULES[rule_set][n][0] for n in names})
+    desc_code = np.array([desc_cats.index(RULES[rule_set][n][0]) for n in rule_cats], dtype=np.int16)[rule_code]
+    events = pd.DataFrame({
+        "row": row.astype(np.int64),
+        "rule": pd.Categorical.from_codes(rule_code, categories=rule_cats),
+        "rule_set": pd.Categorical.from_codes(np.zeros(len(row), dtype=np.int8), categories=[rule_set]),
+        "direction": pd.Categorical.from_codes(up.astype(np.int8), categories=["down", "up"]),
+        "description": pd.Categorical.from_codes(desc_code, categories=desc_cats)})
     return RuleEvents(events=events, rule_set=rule_set, rules=names)

@@ -16,31 +16,51 @@ from __future__ import annotations
 
 import numpy as np
 
-from pipeline.charts.grouping import grouped_cumsum
+from pipeline.charts.grouping import Segments, grouped_cumsum
 
 METHOD = "Quesenberry (1991) Q statistics, mean unknown / sigma known (fleet pooled); Q_1 against the calibrated target"
 
 
-def quesenberry_q(x: np.ndarray, starts: np.ndarray, sigma: np.ndarray, *, r0: np.ndarray | None = None,
-                  sum0: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def quesenberry_q(x: np.ndarray, starts: np.ndarray, sigma: np.ndarray | float, *,
+                  r0: np.ndarray | float | None = None, sum0: np.ndarray | float | None = None,
+                  seg: Segments | None = None, rows: np.ndarray | None = None
+                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Q statistics per row, restarting at each group.
 
     Parameters:
-        x: values sorted by group then time; sigma: known sigma per row.
-        r0, sum0: per-row count and sum of x already seen in the group before these rows (0 if None).
+        x: values sorted by group then time; sigma: known sigma per row (or one value).
+        r0, sum0: per-row (or scalar) count and sum of x already seen in the group before these rows (0 if None).
+        seg: Segments.from_starts(starts), when the caller has it already.
+        rows: compute only these rows (the running sums still cover every row); per-row sigma,
+            r0 and sum0 are then given for these rows only.
     Returns:
-        (q, center, scale): q = (x - center) / scale, center the running mean used, scale the
-        effective sigma sigma sqrt(r/(r-1)) (sigma for r = 1).
+        (q, center, scale) per row (or per `rows`): q = (x - center) / scale, center the running
+        mean used, scale the effective sigma sigma sqrt(r/(r-1)) (sigma for r = 1).
     """
     x = np.asarray(x, dtype=float)
-    n = len(x)
-    r0 = np.zeros(n) if r0 is None else np.asarray(r0, dtype=float)
-    sum0 = np.zeros(n) if sum0 is None else np.asarray(sum0, dtype=float)
-    csum = grouped_cumsum(x, starts)
-    from pipeline.charts.grouping import position_in_group
-    r = r0 + position_in_group(starts) + 1
-    prev_sum = sum0 + csum - x
-    prev_mean = np.where(r > 1, prev_sum / np.maximum(r - 1, 1), 0.0)
-    scale = np.where(r > 1, sigma * np.sqrt(r / np.maximum(r - 1, 1)), sigma)
-    q = (x - prev_mean) / scale
-    return q, prev_mean, scale
+    seg = Segments.from_starts(starts) if seg is None else seg
+    csum = grouped_cumsum(x, seg.starts, seg=seg)
+    pos = seg.pos
+    if rows is not None:
+        csum, x, pos = csum[rows], x[rows], pos[rows]
+    r0 = 0.0 if r0 is None else r0
+    sum0 = 0.0 if sum0 is None else sum0
+    # The same arithmetic as r = r0 + pos + 1, prev_sum = sum0 + csum - x, prev_mean = prev_sum /
+    # max(r - 1, 1) (0 at r = 1), scale = sigma sqrt(r / max(r - 1, 1)), written in place.
+    r = np.add(r0, pos, dtype=float)
+    r += 1
+    first = r <= 1
+    prev = np.add(sum0, csum, out=csum)
+    prev -= x
+    below = r - 1
+    np.maximum(below, 1, out=below)
+    prev /= below
+    prev[first] = 0.0
+    scale = np.divide(r, below, out=below)
+    np.sqrt(scale, out=scale)
+    scale *= sigma
+    if first.any():
+        scale[first] = np.broadcast_to(sigma, scale.shape)[first]
+    q = x - prev
+    q /= scale
+    return q, prev, scale

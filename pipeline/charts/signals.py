@@ -21,14 +21,14 @@ def signal_p_values(sig: pd.DataFrame, *, k: float, h: float, lam: float, L: flo
     """In-control probability of a signal no later than the observed run length (position)."""
     p = np.full(len(sig), np.nan)
     pos = sig["position"].to_numpy(dtype=int)
-    chart = sig["chart"].to_numpy()
-    m = chart == "cusum"
+    chart = sig["chart"]
+    m = (chart == "cusum").to_numpy(dtype=bool)
     if m.any():
         p[m] = cusum_signal_p_values(pos[m], k, h)
-    m = chart == "ewma"
+    m = (chart == "ewma").to_numpy(dtype=bool)
     if m.any():
         p[m] = ewma_signal_p_values(pos[m], lam, L)
-    m = chart == "individuals"
+    m = (chart == "individuals").to_numpy(dtype=bool)
     if m.any():
         alpha = 2 * norm.sf(3.0)
         p[m] = 1 - (1 - alpha) ** pos[m]
@@ -52,7 +52,12 @@ def impact_checks(con, sig: pd.DataFrame) -> np.ndarray:
     """
     if sig.empty:
         return np.empty(0, dtype=np.int64)
-    codes, names = pd.factorize(sig["instrument_id"].astype(str))
+    unit = sig["instrument_id"]
+    if isinstance(unit.dtype, pd.CategoricalDtype):  # codes of the units present, no strings made
+        unit = unit.cat.remove_unused_categories()
+        codes, names = unit.cat.codes.to_numpy(), unit.cat.categories.astype(str)
+    else:
+        codes, names = pd.factorize(unit.astype(str))
     onset = sig["onset_at"].fillna(sig["measured_at"]).to_numpy(dtype="datetime64[us]")
     at = sig["measured_at"].to_numpy(dtype="datetime64[us]")
     lo = onset.min()
