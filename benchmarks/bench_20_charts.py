@@ -1,11 +1,36 @@
 """Chart engine speed: analyse_fleet on the 10-million-check fleet against a per-unit pandas loop.
 
 Full run: every chart of every unit except the last week's checks; then an incremental run
-after that week is added back. The per-unit loop (plain Python recursions for CUSUM and EWMA,
-pandas for moving range and rolling run rules, one chart group at a time) runs on a random
-sample of chart groups in the same process and is scaled up by checks. Targets: full < 30 s,
->= 50x the loop, incremental week < 3 s.
+after that week is added back. Targets: full < 30 s, >= 50x the loop, incremental week < 3 s.
 Fleet: benchmarks.fleet.benchmark_database() (the demo generator at 5,000 units x 24 months).
+
+The loop baseline (loop_charts) is the straightforward way to do the same work: one unit at a
+time, and inside it one chart segment (level, baseline period) at a time, with numpy/pandas used
+freely within the segment but nothing vectorised across units or segments. Per segment it does
+everything the engine does: Quesenberry Q statistics against the frozen fleet pooled sigma until
+the segment has its own baseline (mean and MR-bar/d2 of its first 20 checks), z rounded as the
+engine rounds it, the moving range and its limit signals, the four Western Electric rules (up and
+down, reported where they start; pandas rolling windows), the two-sided tabular CUSUM with its
+N+/N- counters, crossing signals and Page's onset (a Python loop over the checks, the textbook
+recursion), the EWMA (scipy lfilter over the segment) with exact limits and crossing signals,
+the baseline records (version 1 and 2) and the carried state. Per unit it forms the X-bar/S
+replicate groups (pandas groupby) with their limit signals, fits the linearity of each
+verification session (pandas groupby sums, t intervals), counts each signal's impact window
+(binary search in the unit's control-check times) and the run length each signal is tested on.
+After the loop, as fleet-wide steps, p-values from the in-control run-length distributions and
+Benjamini-Hochberg over the signals (the same library calls as the engine). Per-segment results
+are kept as arrays and joined once at the end (not one DataFrame per segment).
+
+What is timed and compared. The loop runs on a random sample of units, on the same checks as the
+engine's full run, in this process after it, and is scaled up by checks. It does not read or
+store: it is given the sample's rows, the frozen pooled sigma and the units' control-check times
+(read before its clock starts). Its estimate for the fleet is therefore: the engine's own read
+and store times (the same SQL would serve the loop) + the loop's work scaled up. The engine's
+full-run figure includes everything, also computing the fleet pooled sigma, which the loop is
+given. The benchmark checks that the loop's results equal the engine's on the sample (points,
+signals with impact windows and p-values, baselines, X-bar/S groups, linearity) and prints the
+differences, so the two are known to do the same work. Printed ratios: end to end (loop estimate
+over the engine's full run) and work only (loop work over the engine's compute part).
 """
 
 from __future__ import annotations
@@ -18,43 +43,263 @@ import numpy as np
 import pandas as pd
 
 OUT = Path(__file__).resolve().parent.parent / "bench-output"
+SAMPLE_UNITS = 50
+WE_RULES = ("WE1", "WE2", "WE3", "WE4")
 
 
-def loop_charts(frame: pd.DataFrame, params: dict, pooled: float) -> int:
-    """The straightforward way: one chart group at a time, Python recursions over its checks."""
-    k, h = params["cusum"]["k"], params["cusum"]["h"]
+def _we_rules(zs: pd.Series) -> list[tuple[str, str, pd.Series]]:
+    """The Western Electric rules on one segment's z (pandas rolling windows): (rule, side, hit)."""
+    out = [("WE1", "up", zs > 3), ("WE1", "down", zs < -3)]
+    for rule, limit, window, need in (("WE2", 2, 3, 2), ("WE3", 1, 5, 4), ("WE4", 0, 8, 8)):
+        out.append((rule, "up", (zs > limit).astype(float).rolling(window).sum() >= need))
+        out.append((rule, "down", (zs < -limit).astype(float).rolling(window).sum() >= need))
+    return out
+
+
+def loop_charts(frame: pd.DataFrame, controls: dict, params: dict, replicate_minutes: float,
+                verification_minutes: float, fdr_q: float) -> dict[str, pd.DataFrame]:
+    """Every chart of every unit in `frame`, one unit and one segment at a time (see module docstring).
+
+    frame: chart input rows (check_id, instrument_id, level, baseline_period, measured_at,
+    check_type, relative_error, expected, measured, pooled_sigma) sorted by unit, level, segment,
+    time; controls: unit -> sorted control-check times. Returns points, signals, baselines,
+    groups and linearity frames.
+    """
+    from scipy.signal import lfilter
+    from scipy.stats import t as t_dist
+
+    from pipeline.charts.constants import c4, shewhart_constants
+    from pipeline.charts.individuals import mr_ucl_standardised
+    from pipeline.charts.signals import fleet_significance, signal_p_values
+
+    if params["run_rules"]["set"] != "western_electric" or tuple(params["run_rules"]["rules"]) != WE_RULES:
+        raise ValueError("the loop baseline implements the Western Electric rule set (the default settings)")
+    k, h, headstart = params["cusum"]["k"], params["cusum"]["h"], params["cusum"]["headstart"]
     lam, L = params["ewma"]["lam"], params["ewma"]["L"]
-    n_min = params["own_baseline_min_checks"]
-    signals = 0
-    for _, g in frame.groupby(["instrument_id", "level", "baseline_period"], sort=False):
-        x = g["relative_error"].to_numpy()
-        z = np.empty(len(x))
-        for i in range(len(x)):
-            if i < n_min:
-                z[i] = x[i] / pooled if i == 0 else np.sqrt(i / (i + 1)) * (x[i] - x[:i].mean()) / pooled
-            else:
-                c, s = x[:n_min].mean(), np.abs(np.diff(x[:n_min])).mean() / 1.128
-                z[i] = (x[i] - c) / s
-        zs = pd.Series(z)
-        mr = zs.diff().abs()
-        cu = cl = e = 0.0
-        for i, v in enumerate(z):
-            cu = max(0.0, cu + v - k)
-            cl = max(0.0, cl - v - k)
-            e = lam * v + (1 - lam) * e
-            half = L * np.sqrt(lam / (2 - lam) * (1 - (1 - lam) ** (2 * (i + 1))))
-            signals += (cu > h) + (cl > h) + (abs(e) > half)
-        signals += int((zs.abs() > 3).sum() + (mr > 3.686).sum())
-        signals += int(((zs > 2).rolling(3).sum() >= 2).sum() + ((zs > 1).rolling(5).sum() >= 4).sum()
-                       + ((zs > 0).rolling(8).sum() == 8).sum())
-    return signals
+    n_min = int(params["own_baseline_min_checks"])
+    d2, mr_limit = shewhart_constants(2).d2, mr_ucl_standardised()
+    window = np.timedelta64(int(replicate_minutes * 60e6), "us")
+    session_gap = np.timedelta64(int(verification_minutes * 60e6), "us")
+    cols = {c: [] for c in ("check_id", "position", "z", "moving_range", "cusum_upper", "cusum_lower", "ewma",
+                            "ewma_ucl", "center", "sigma", "unit_sigma", "cusum_upper_run", "cusum_lower_run")}
+    signals, baselines, states, groups, lines = [], [], [], [], []
+    for unit, u in frame.groupby("instrument_id", sort=False, observed=True):
+        unit_signals = []  # (check_id, measured_at, level, position, chart, rule, direction, size, onset_at)
+        unit_z, unit_pos = [], []
+        for (level, period), g in u.groupby(["level", "baseline_period"], sort=False):
+            x = g["relative_error"].to_numpy()
+            t = g["measured_at"].to_numpy()
+            ids = g["check_id"].to_numpy()
+            pooled = g["pooled_sigma"].to_numpy()
+            n = len(x)
+            r = np.arange(1, n + 1)
+            # Quesenberry Q: mean of the earlier checks of the segment, pooled sigma inflated by sqrt(r/(r-1)).
+            prev_mean = np.zeros(n)
+            prev_mean[1:] = np.cumsum(x)[:-1] / r[:-1]
+            scale = pooled * np.sqrt(r / np.maximum(r - 1, 1))
+            scale[0] = pooled[0]
+            q = (x - prev_mean) / scale
+            center = sigma = np.nan
+            if n >= n_min:
+                center = x[:n_min].mean()
+                sigma = np.abs(np.diff(x[:n_min])).mean() / d2
+            own = (r > n_min) & np.isfinite(sigma) & (sigma > 0)
+            z = np.round(np.where(own, (x - center) / (sigma if sigma > 0 else 1.0), q), 9)
+            zs = pd.Series(z)
+            mr = zs.diff().abs().to_numpy()
+            for i in np.flatnonzero(mr > mr_limit):
+                unit_signals.append((ids[i], t[i], level, i + 1, "moving_range", "limit", "up", mr[i], None))
+            for rule, side, hit in _we_rules(zs):
+                start = (hit & ~hit.shift(fill_value=False)).to_numpy()
+                for i in np.flatnonzero(start):
+                    unit_signals.append((ids[i], t[i], level, i + 1, "individuals", rule, side, z[i], None))
+            # Tabular CUSUM, both sides, with the counts of checks since each side was last zero.
+            cu = np.empty(n)
+            cl = np.empty(n)
+            nu = np.empty(n, dtype=np.int64)
+            nl = np.empty(n, dtype=np.int64)
+            c_up = c_lo = headstart
+            run_up = run_lo = 0
+            for i in range(n):
+                new_up = max(0.0, c_up + z[i] - k)
+                new_lo = max(0.0, c_lo - z[i] - k)
+                run_up = run_up + 1 if new_up > 0 else 0
+                run_lo = run_lo + 1 if new_lo > 0 else 0
+                if new_up > h and not c_up > h:
+                    unit_signals.append((ids[i], t[i], level, i + 1, "cusum", "h", "up", new_up, t[i - run_up + 1]))
+                if new_lo > h and not c_lo > h:
+                    unit_signals.append((ids[i], t[i], level, i + 1, "cusum", "h", "down", new_lo, t[i - run_lo + 1]))
+                cu[i], cl[i], nu[i], nl[i] = new_up, new_lo, run_up, run_lo
+                c_up, c_lo = new_up, new_lo
+            # EWMA from 0 with exact limits.
+            e = lfilter([lam], [1.0, -(1.0 - lam)], z)
+            half = L * np.sqrt(lam / (2 - lam) * (1 - (1 - lam) ** (2 * r)))
+            for side, beyond in (("up", e > half), ("down", e < -half)):
+                for i in np.flatnonzero(beyond & ~np.r_[False, beyond[:-1]]):
+                    unit_signals.append((ids[i], t[i], level, i + 1, "ewma", "limit", side, e[i], None))
+            baselines.append((unit, level, period, 1, t[0], pooled[0], ids[0]))
+            if n >= n_min:
+                baselines.append((unit, level, period, 2, t[n_min - 1], sigma, ids[n_min - 1]))
+            states.append((unit, level, period, n, x.sum(), cu[-1], cl[-1], e[-1], ids[-1]))
+            for c, v in (("check_id", ids), ("position", r), ("z", z), ("moving_range", mr), ("cusum_upper", cu),
+                         ("cusum_lower", cl), ("ewma", e), ("ewma_ucl", half),
+                         ("center", np.where(own, center, prev_mean)), ("sigma", np.where(own, sigma, scale)),
+                         ("unit_sigma", own), ("cusum_upper_run", nu), ("cusum_lower_run", nl)):
+                cols[c].append(v)
+            unit_z.append(z)
+            unit_pos.append(r)
+        # X-bar and S of replicate checks (same level and type, successive checks within the window).
+        d = pd.DataFrame({"level": u["level"].to_numpy(), "check_type": u["check_type"].to_numpy(),
+                          "t": u["measured_at"].to_numpy(), "z": np.concatenate(unit_z),
+                          "check_id": u["check_id"].to_numpy(), "position": np.concatenate(unit_pos)})
+        d = d.sort_values(["level", "check_type", "t"], kind="stable")
+        brk = ((d["level"] != d["level"].shift()) | (d["check_type"] != d["check_type"].shift())
+               | (d["t"].diff() > window))
+        agg = d.groupby(brk.cumsum().to_numpy()).agg(
+            n=("z", "size"), xbar=("z", "mean"), s=("z", "std"), check_id=("check_id", "last"), t=("t", "last"),
+            level=("level", "last"), check_type=("check_type", "last"), position=("position", "last"))
+        agg = agg[agg["n"] >= 2]
+        for row in agg.itertuples(index=False):
+            c4n = c4(min(int(row.n), 100))
+            s_lo, s_hi = max(0.0, c4n - 3 * np.sqrt(1 - c4n ** 2)), c4n + 3 * np.sqrt(1 - c4n ** 2)
+            groups.append((unit, row.level, row.check_type, row.check_id, row.n, row.xbar, row.s))
+            if abs(row.xbar) > 3 / np.sqrt(row.n):
+                unit_signals.append((row.check_id, row.t, row.level, row.position, "xbar", "limit",
+                                     "up" if row.xbar > 0 else "down", row.xbar, None))
+            if row.s > s_hi or row.s < s_lo:
+                unit_signals.append((row.check_id, row.t, row.level, row.position, "s", "limit",
+                                     "up" if row.s > s_hi else "down", row.s, None))
+        # Linearity of each verification session (checks of the unit within the gap of each other).
+        v = u[u["check_type"] == "verification"].sort_values("measured_at", kind="stable")
+        if len(v):
+            sess = (v["measured_at"].diff() > session_gap).cumsum().to_numpy()
+            ex, me = v["expected"].to_numpy(), v["measured"].to_numpy()
+            a = pd.DataFrame({"g": sess, "x": ex, "y": me, "xx": ex * ex, "xy": ex * me, "yy": me * me,
+                              "level": v["level"].to_numpy(), "t": v["measured_at"].to_numpy()}).groupby("g").agg(
+                n=("x", "size"), n_levels=("level", "nunique"), started_at=("t", "min"), ended_at=("t", "max"),
+                sx=("x", "sum"),
+                sy=("y", "sum"), sxx=("xx", "sum"), sxy=("xy", "sum"), syy=("yy", "sum"))
+            a = a[(a["n"] >= 3) & (a["n_levels"] >= 2)]
+            if len(a):
+                nn = a["n"].to_numpy(float)
+                sxx = a["sxx"] - a["sx"] ** 2 / nn
+                sxy = a["sxy"] - a["sx"] * a["sy"] / nn
+                slope = sxy / sxx
+                intercept = (a["sy"] - slope * a["sx"]) / nn
+                s2 = np.maximum(a["syy"] - a["sy"] ** 2 / nn - slope * sxy, 0) / np.maximum(nn - 2, 1)
+                tq = t_dist.ppf(0.975, np.maximum(nn - 2, 1))
+                half_b = tq * np.sqrt(s2 / sxx)
+                half_a = tq * np.sqrt(s2 * (1 / nn + (a["sx"] / nn) ** 2 / sxx))
+                for row in zip(a["started_at"], a["ended_at"], a["n"], a["n_levels"], slope, half_b, intercept,
+                               half_a, np.sqrt(s2)):
+                    started, ended, nc, nl_, b, hb, a0, ha, sd = row
+                    lines.append((unit, started, ended, nc, nl_, b, b - hb, b + hb, a0, a0 - ha, a0 + ha, sd,
+                                  abs(b - 1) > hb, abs(a0) > ha))
+        # Impact window of each signal, and the run length it is tested on (checks since the
+        # previous signal of the same chart, rule and side, or since the segment began).
+        if unit_signals:
+            s = pd.DataFrame(unit_signals, columns=["check_id", "measured_at", "level", "position", "chart", "rule",
+                                                    "direction", "size", "onset_at"])
+            s = s.sort_values(["measured_at", "level", "chart", "rule"], kind="stable").reset_index(drop=True)
+            times = controls.get(unit, np.empty(0, dtype="datetime64[us]"))
+            at = s["measured_at"].to_numpy(dtype="datetime64[us]")
+            onset = s["onset_at"].fillna(s["measured_at"]).to_numpy(dtype="datetime64[us]")
+            s["impact_checks"] = np.searchsorted(times, at, side="right") - np.searchsorted(times, onset, side="left")
+            s = s.sort_values(["level", "chart", "rule", "direction", "position"], kind="stable")
+            prev = s.groupby(["level", "chart", "rule", "direction"], sort=False)["position"].shift()
+            s["run_length"] = np.where(prev.isna() | (prev >= s["position"]), s["position"],
+                                       s["position"] - prev.fillna(0)).astype(np.int64)
+            signals.append(s.assign(instrument_id=unit))
+    sig = pd.concat(signals, ignore_index=True) if signals else pd.DataFrame()
+    if len(sig):
+        sig["p_value"] = signal_p_values(sig.assign(position=sig["run_length"]), k=k, h=h, lam=lam, L=L)
+        sig["fleet_significant"] = fleet_significance(sig["p_value"].to_numpy(), fdr_q)
+    points = pd.DataFrame({c: np.concatenate(v) for c, v in cols.items()})
+    return {"points": points, "signals": sig,
+            "baselines": pd.DataFrame(baselines, columns=["instrument_id", "level", "baseline_period", "version",
+                                                          "frozen_at", "sigma", "last_check_id"]),
+            "state": pd.DataFrame(states, columns=["instrument_id", "level", "baseline_period", "n", "sum_x",
+                                                   "cusum_upper", "cusum_lower", "ewma", "last_check_id"]),
+            "groups": pd.DataFrame(groups, columns=["instrument_id", "level", "check_type", "check_id", "n", "xbar",
+                                                    "s"]),
+            "linearity": pd.DataFrame(lines, columns=["instrument_id", "started_at", "ended_at", "n_checks", "n_levels",
+                                                      "slope", "slope_low", "slope_high", "intercept", "intercept_low",
+                                                      "intercept_high", "residual_sd", "proportional_bias",
+                                                      "constant_bias"])}
+
+
+def _sample(con, run_id: int, through: int) -> tuple[pd.DataFrame, dict, list[str]]:
+    """The full run's chart input rows of a random sample of units, and their control-check times."""
+    units = [r[0] for r in con.execute(
+        f"SELECT instrument_id FROM (SELECT DISTINCT instrument_id FROM chart_state) USING SAMPLE {SAMPLE_UNITS} ROWS "
+        "(reservoir, 7) ORDER BY 1").fetchall()]
+    con.register("_bench_units", pd.DataFrame({"instrument_id": units}))
+    frame = con.execute(
+        "SELECT r.check_id, r.instrument_id, r.level, CAST(r.baseline_period * 1000 AS INTEGER) AS baseline_period, "
+        "r.measured_at, r.check_type, r.relative_error, r.expected, r.measured, p.sigma AS pooled_sigma "
+        "FROM check_results r JOIN _bench_units USING (instrument_id) "
+        "JOIN chart_pooled_sigma p ON p.technology = coalesce(r.technology, 'unknown') "
+        " AND p.standard_kind = coalesce(r.standard_kind, 'unknown') AND p.level = r.level "
+        "WHERE r.check_type IN ('control', 'daily', 'verification') AND coalesce(r.outcome, 'pass') NOT IN "
+        "('aborted', 'invalid') AND r.relative_error IS NOT NULL AND isfinite(r.relative_error) AND r.check_id <= $t "
+        "ORDER BY r.instrument_id, r.level, baseline_period, r.measured_at, r.check_id", {"t": through}).df()
+    ctl = con.execute("SELECT c.instrument_id, c.measured_at FROM checks c JOIN _bench_units USING (instrument_id) "
+                      "WHERE c.check_type = 'control' ORDER BY 1, 2").df()
+    con.unregister("_bench_units")
+    controls = {u: g["measured_at"].to_numpy(dtype="datetime64[us]") for u, g in ctl.groupby("instrument_id")}
+    return frame, controls, units
+
+
+def _compare(con, loop: dict, run_id: int, through: int, units: list[str]) -> str:
+    """How far the loop's results are from what the engine stored for the same units in its full run."""
+    con.register("_bench_units", pd.DataFrame({"instrument_id": units}))
+    try:
+        pts = con.execute("SELECT p.* FROM chart_points p JOIN _bench_units USING (instrument_id) "
+                          "WHERE p.check_id <= $t", {"t": through}).df()
+        sig = con.execute("SELECT s.* FROM chart_signals s JOIN _bench_units USING (instrument_id) WHERE run_id = $r",
+                          {"r": run_id}).df()
+        n_base = con.execute("SELECT count(*) FROM chart_baselines JOIN _bench_units USING (instrument_id) "
+                             "WHERE baseline_id <= (SELECT n_baselines FROM chart_runs WHERE run_id = $r)",
+                             {"r": run_id}).fetchone()[0]
+        grp = con.execute("SELECT g.* FROM chart_groups g JOIN _bench_units USING (instrument_id) WHERE run_id = $r",
+                          {"r": run_id}).df()
+        lin = con.execute("SELECT l.* FROM chart_linearity l JOIN _bench_units USING (instrument_id) WHERE run_id = $r",
+                          {"r": run_id}).df()
+    finally:
+        con.unregister("_bench_units")
+    m = loop["points"].merge(pts, on="check_id", suffixes=("", "_e"))
+    worst = max(float(np.nanmax(np.abs(m[c] - m[f"{c}_e"]))) for c in
+                ("z", "moving_range", "cusum_upper", "cusum_lower", "ewma", "ewma_ucl", "center", "sigma"))
+    runs_off = int(((m["cusum_upper_run"] != m["cusum_upper_run_e"]) | (m["cusum_lower_run"] != m["cusum_lower_run_e"])
+                    | (m["position"] != m["position_e"]) | (m["unit_sigma"] != (m["sigma_source"] == "unit"))).sum())
+    key = ["check_id", "chart", "rule", "direction"]
+    ls = loop["signals"].astype({"chart": str, "rule": str, "direction": str})
+    ms = ls.merge(sig.astype({"chart": str, "rule": str, "direction": str}), on=key, how="outer", indicator=True,
+                  suffixes=("", "_e"))
+    both = ms[ms["_merge"] == "both"]
+    unmatched = int((ms["_merge"] != "both").sum())
+    impact_off = int((both["impact_checks"] != both["impact_checks_e"]).sum())
+    p_off = float(np.nanmax(np.abs(both["p_value"] - both["p_value_e"]))) if len(both) else 0.0
+    gm = loop["groups"].merge(grp, on="check_id", suffixes=("", "_e"))
+    g_off = float(np.max(np.abs(np.r_[gm["xbar"] - gm["xbar_e"], gm["s"] - gm["s_e"]]))) if len(gm) else 0.0
+    lm = loop["linearity"].merge(lin, on=["instrument_id", "started_at"], suffixes=("", "_e"))
+    l_off = float(np.nanmax(np.abs(np.r_[lm["slope"] - lm["slope_e"], lm["intercept_low"] - lm["intercept_low_e"]]))) \
+        if len(lm) else 0.0
+    flags_off = int(((lm["proportional_bias"] != lm["proportional_bias_e"])
+                     | (lm["constant_bias"] != lm["constant_bias_e"])).sum())
+    return (f"{len(m):,} of {len(loop['points']):,} points matched, max |difference| {worst:.1e}, "
+            f"{runs_off} with other positions/run counters/sigma source; signals {len(both):,} matched, "
+            f"{unmatched} unmatched, {impact_off} other impact windows, max |p-value difference| {p_off:.1e}; "
+            f"baselines {len(loop['baselines'])} vs {n_base}; X-bar/S groups {len(loop['groups'])} vs {len(grp)} "
+            f"(max |difference| {g_off:.1e}); linearity sessions {len(loop['linearity'])} vs {len(lin)} "
+            f"(max |difference| {l_off:.1e}, {flags_off} other bias flags)")
 
 
 def main() -> None:
     import duckdb
 
     from pipeline.charts.analyse import analyse_fleet, chart_parameters
-    from pipeline.db import migrate, query_df
+    from pipeline.db import migrate
     from pipeline.settings import Settings
 
     from benchmarks.fleet import benchmark_database
@@ -81,6 +326,7 @@ def main() -> None:
     t0 = time.perf_counter()
     full = analyse_fleet(con, settings)
     t_full = time.perf_counter() - t0
+    through = con.execute("SELECT checks_through FROM chart_runs WHERE run_id = $r", {"r": full.run_id}).fetchone()[0]
     # The week arrives as an ingest delivers it: new check ids above every stored one. The
     # incremental time includes bringing check_results up to date for it.
     con.execute("UPDATE _bench_week SET check_id = check_id + (SELECT max(check_id) FROM checks)")
@@ -88,28 +334,30 @@ def main() -> None:
     t0 = time.perf_counter()
     inc = analyse_fleet(con, settings)
     t_inc = time.perf_counter() - t0
-    # The loop baseline on a sample of chart groups, scaled up by checks.
-    pts = con.execute("SELECT instrument_id, level, baseline_period, relative_error FROM chart_points "
-                      "WHERE instrument_id IN (SELECT DISTINCT instrument_id FROM chart_points USING SAMPLE 40 ROWS "
-                      "(reservoir, 7)) ORDER BY instrument_id, level, baseline_period, position").df()
-    sigma = float(con.execute("SELECT median(sigma) FROM chart_pooled_sigma").fetchall()[0][0])
+    # The loop baseline on a sample of units: the same checks as the full run, scaled up by checks.
+    frame, controls, units = _sample(con, full.run_id, through)
+    cs = settings.charts
     params = chart_parameters(settings)
     t0 = time.perf_counter()
-    loop_charts(pts, params, sigma)
+    loop = loop_charts(frame, controls, params, cs.replicate_window_minutes, cs.verification_window_minutes,
+                       cs.fleet_fdr_q)
     t_loop_sample = time.perf_counter() - t0
-    total = full.n_new_checks + inc.n_new_checks
-    t_loop = t_loop_sample * total / max(len(pts), 1)
+    agreement = _compare(con, loop, full.run_id, through, units)
     con.close()
-    print(f"fleet: {total:,} charted checks, {full.n_groups:,} chart groups ({src.name})")
-    print(f"full run:        {t_full:8.2f} s  ({full.n_new_checks:,} checks, {full.n_signals:,} signals)   target < 30 s")
-    print(f"per-unit loop:   {t_loop:8.1f} s  (sample {len(pts):,} checks in {t_loop_sample:.2f} s, scaled)")
-    print(f"speed-up:        {t_loop / t_full:8.1f} x   target >= 50 x")
     tm = full.timings
-    print(f"full run parts:  read check_results {tm['read']:.2f} s, compute {tm['compute']:.2f} s, store {tm['store']:.2f} s;"
-          f" compute-only speed-up {t_loop / tm['compute']:.1f} x")
+    t_loop_work = t_loop_sample * full.n_new_checks / max(len(frame), 1)
+    t_loop = tm["read"] + t_loop_work + tm["store"]
+    print(f"fleet: {full.n_new_checks + inc.n_new_checks:,} charted checks, {full.n_groups:,} chart groups ({src.name})")
+    print(f"full run:        {t_full:8.2f} s  ({full.n_new_checks:,} checks, {full.n_signals:,} signals)   target < 30 s")
+    print(f"full run parts:  read {tm['read']:.2f} s, compute {tm['compute']:.2f} s, store {tm['store']:.2f} s")
+    print(f"per-unit loop:   {t_loop:8.1f} s  (engine read + store {tm['read'] + tm['store']:.1f} s + loop work "
+          f"{t_loop_work:.1f} s: sample of {len(units)} units, {len(frame):,} checks in {t_loop_sample:.2f} s, scaled)")
+    print(f"speed-up:        {t_loop / t_full:8.1f} x end to end   target >= 50 x;"
+          f" work only {t_loop_work / tm['compute']:.1f} x (loop work / engine compute)")
+    print(f"loop vs engine on the sample: {agreement}")
     ti = inc.timings
-    print(f"incremental parts: read {ti['read']:.2f} s, compute {ti['compute']:.2f} s, store {ti['store']:.2f} s")
-    print(f"incremental week:{t_inc:8.2f} s  ({inc.n_new_checks:,} checks)   target < 3 s")
+    print(f"incremental week:{t_inc:8.2f} s  ({inc.n_new_checks:,} checks; read {ti['read']:.2f} s incl. check_results "
+          f"refresh, compute {ti['compute']:.2f} s, store {ti['store']:.2f} s)   target < 3 s")
     print(f"(not timed above: check_results brought in line with the trimmed checks in {t_refresh:.1f} s, "
           "work that ingest does)")
 

@@ -52,7 +52,9 @@ class AnalysisRun:
     duration_s: float
     parameters: dict
     data_end: datetime | None
-    timings: dict  # seconds: read (check_results + state), compute (all charts), store
+    # seconds: read (settings sync, check_results, state), compute (pooled sigma, every chart, linearity,
+    # signal run lengths, p-values and impact windows), store (inserts and commit)
+    timings: dict
 
 
 def chart_parameters(settings: Settings) -> dict:
@@ -358,7 +360,7 @@ def read_chart_input(con: duckdb.DuckDBPyConnection, with_rebaselines: bool, thr
         for t in ("_bf_units", "_bf_technologies", "_bf_kinds", "_bf_recharge"):
             con.execute(f"DROP TABLE IF EXISTS {t}")
     def cat(codes, categories):
-        return pd.Categorical.from_codes(np.asarray(codes, dtype=np.int32), categories=categories)
+        return pd.Categorical.from_codes(codes, categories=categories)
     return pd.DataFrame({
         "check_id": raw["check_id"], "instrument_id": cat(raw["unit_code"], names["_bf_units"]),
         "level": raw["level"], "measured_at": raw["measured_at"],
@@ -389,9 +391,13 @@ def _load_state(con, keys: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame, pd
                           "JOIN _bf_keys USING (instrument_id, level, baseline_period) WHERE b.sigma_source = 'unit' "
                           "QUALIFY row_number() OVER (PARTITION BY b.instrument_id, b.level, b.baseline_period "
                           "ORDER BY b.version DESC) = 1").df()
+        # The last TAIL positions of each group: positions run 1..n (chart_state.n), so the window
+        # only ranks the few rows above n - TAIL (all rows of a group without state).
         tail = con.execute(
             "SELECT p.instrument_id, p.level, p.baseline_period, p.check_id, p.measured_at, p.relative_error, p.position, p.z "
-            "FROM chart_points p JOIN _bf_keys USING (instrument_id, level, baseline_period) "
+            "FROM chart_points p JOIN (SELECT k.*, s.n FROM _bf_keys k LEFT JOIN chart_state s "
+            "USING (instrument_id, level, baseline_period)) k USING (instrument_id, level, baseline_period) "
+            f"WHERE k.n IS NULL OR p.position > k.n - {TAIL} "
             f"QUALIFY row_number() OVER (PARTITION BY p.instrument_id, p.level, p.baseline_period ORDER BY p.position DESC) <= {TAIL}"
         ).df()
     finally:
@@ -446,6 +452,7 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
             new = read_chart_input(con, with_rb, through, recharge)
             state, own, tail = _load_state(con, _group_keys(new))
     pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
+    t_read = time.perf_counter() - t0
     missing = np.isnan(pooled_lookup(new, pooled))
     if missing.any():
         sub = new[missing] if not missing.all() else new
@@ -455,7 +462,6 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
         con.execute("INSERT INTO chart_pooled_sigma SELECT technology, standard_kind, level, sigma, n_pairs, "
                     "frozen_at, method FROM fresh")
         pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
-    t_read = time.perf_counter() - t0
     out = compute_charts(new, tail, state, own, pooled, params)
     window = settings.charts.replicate_window_minutes
     pts = out["points"]
@@ -474,7 +480,6 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
                 extra.append(signal_frame(base, hit, chart, "limit",
                                           np.where(value[hit] > groups[hi].to_numpy()[hit], "up", "down"), value[hit]))
     sig = pd.concat([out["signals"], *extra], ignore_index=True) if extra else out["signals"]
-    t_compute = time.perf_counter() - t0 - t_read
     ver = new.loc[(new["check_type"] == "verification").to_numpy(),
                   ["instrument_id", "measured_at", "expected", "measured", "level"]]
     lin = fit_linearity(ver, settings.charts.verification_window_minutes)
@@ -518,7 +523,7 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
         bl.loc[why["index"].to_numpy(), "reason"] = ("rebaseline: " + why["reason"]).to_numpy()
     data_end = None if new.empty else pd.Timestamp(new["measured_at"].max()).to_pydatetime()
     st = out["state"]
-    pts = out["points"]
+    t_compute = time.perf_counter() - t0 - t_read
     with transaction(con):
         con.register("_bf_points", pa.Table.from_pandas(pts, preserve_index=False))  # Arrow: no copy
         con.execute("INSERT INTO chart_points BY NAME SELECT *, $ind_lcl AS ind_lcl, $ind_ucl AS ind_ucl, "

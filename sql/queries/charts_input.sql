@@ -7,10 +7,12 @@
 -- _bf_kinds that pipeline/charts/analyse.py creates (millions of strings are the slow part of a read).
 -- $through: checks with a check_id at or below it are charted already, except those of the units
 -- in _bf_recharge (their points were removed to chart them again).
+-- Codes come back as the narrowest integers (less to convert for millions of rows).
 SELECT r.check_id, u.unit_code, r.level, r.measured_at,
-       CASE r.check_type WHEN 'control' THEN 0 WHEN 'daily' THEN 1 ELSE 2 END AS check_type_code,
-       r.relative_error, r.expected, r.measured, t.code AS technology_code, k.code AS kind_code,
-       r.baseline_period * 1000 + {segment_offset} AS baseline_period
+       CAST(CASE r.check_type WHEN 'control' THEN 0 WHEN 'daily' THEN 1 ELSE 2 END AS TINYINT) AS check_type_code,
+       r.relative_error, r.expected, r.measured,
+       CAST(t.code AS SMALLINT) AS technology_code, CAST(k.code AS SMALLINT) AS kind_code,
+       CAST(r.baseline_period * 1000 + {segment_offset} AS INTEGER) AS baseline_period
 FROM check_results r
 JOIN _bf_units u ON u.instrument_id = r.instrument_id
 JOIN _bf_technologies t ON t.name = coalesce(r.technology, 'unknown')
