@@ -453,7 +453,7 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
             state, own, tail = _load_state(con, _group_keys(new))
     pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
     t_read = time.perf_counter() - t0
-    missing = np.isnan(pooled_lookup(new, pooled))
+    missing = np.isnan(pooled_lookup(new, pooled)) if len(pooled) else np.ones(len(new), dtype=bool)
     if missing.any():
         sub = new[missing] if not missing.all() else new
         sub = pd.DataFrame({c: sub[c].array for c in ("technology", "standard_kind", "level", "relative_error")}
@@ -541,7 +541,7 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
         if len(sig):
             sig = sig.drop(columns=["position", "onset_back"]).assign(
                 signal_id=np.arange(first_sig, first_sig + len(sig)), run_id=run_id, created_at=started)
-            con.register("_bf_sig", sig)
+            con.register("_bf_sig", pa.Table.from_pandas(sig, preserve_index=False))
             con.execute("INSERT INTO chart_signals BY NAME SELECT * FROM _bf_sig")
             con.unregister("_bf_sig")
         if len(groups):

@@ -61,19 +61,21 @@ def impact_checks(con, sig: pd.DataFrame) -> np.ndarray:
     onset = sig["onset_at"].fillna(sig["measured_at"]).to_numpy(dtype="datetime64[us]")
     at = sig["measured_at"].to_numpy(dtype="datetime64[us]")
     lo = onset.min()
+    shift = np.int64(1) << 46  # microseconds after `lo`: 2^46 us is about 2,200 years
     con.register("_bf_signal_units", pd.DataFrame({"instrument_id": np.asarray(names, dtype=object),
                                                     "code": np.arange(len(names), dtype=np.int64)}))
-    try:
-        ctl = con.execute("SELECT u.code, c.measured_at FROM checks c JOIN _bf_signal_units u USING (instrument_id) "
-                          "WHERE c.check_type = 'control' AND c.measured_at >= $lo",
-                          {"lo": pd.Timestamp(lo).to_pydatetime()}).fetchnumpy()
+    try:  # the same keys, made and sorted by DuckDB
+        keys = con.execute("SELECT u.code * $shift + (epoch_us(c.measured_at) - $lo_us) AS key FROM checks c "
+                           "JOIN _bf_signal_units u USING (instrument_id) "
+                           "WHERE c.check_type = 'control' AND c.measured_at >= $lo ORDER BY key",
+                           {"lo": pd.Timestamp(lo).to_pydatetime(), "shift": int(shift),
+                            "lo_us": int(lo.astype(np.int64))}).fetchnumpy()["key"]
     finally:
         con.unregister("_bf_signal_units")
-    shift = np.int64(1) << 46  # microseconds after `lo`: 2^46 us is about 2,200 years
+    keys = np.asarray(keys, dtype=np.int64)
 
     def key(code, t):
         return np.asarray(code, dtype=np.int64) * shift + (np.asarray(t, dtype="datetime64[us]") - lo).astype(np.int64)
-    keys = np.sort(key(ctl["code"], ctl["measured_at"]))
 
     def search(needles, side):  # sorted needles: the searches walk the keys in order
         order = np.argsort(needles, kind="stable")

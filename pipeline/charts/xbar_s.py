@@ -42,7 +42,13 @@ def _replicate_runs(frame: pd.DataFrame, window_minutes: float) -> tuple[np.ndar
     Returns (rows, g): the rows of those groups in (unit, level, check type, time) order and their
     group number (0, 1, ...), or None when the frame is not in that order.
     """
-    t = frame["measured_at"].to_numpy(dtype="datetime64[ns]").astype(np.int64)
+    t = frame["measured_at"].to_numpy()
+    if t.dtype.kind != "M":
+        return None
+    # Times in their own unit (no conversion of millions of values); a whole number of units is
+    # within the window exactly when it is in nanoseconds.
+    window = int(window_minutes * 60e9) // int(np.timedelta64(1, np.datetime_data(t.dtype)[0]) / np.timedelta64(1, "ns"))
+    t = t.view(np.int64)
     inst, ctype = _codes(frame["instrument_id"]), _codes(frame["check_type"])
     level = frame["level"].to_numpy(dtype=float)
     same_inst = inst[1:] == inst[:-1]
@@ -55,7 +61,7 @@ def _replicate_runs(frame: pd.DataFrame, window_minutes: float) -> tuple[np.ndar
     for c in np.unique(ctype):
         r = np.flatnonzero(ctype == c)  # this check type's rows in time order within each block
         b, tc = block[r], t[r]
-        joined = (b[1:] == b[:-1]) & (np.diff(tc) <= int(window_minutes * 60e9))
+        joined = (b[1:] == b[:-1]) & (np.diff(tc) <= window)
         head = np.r_[True, ~joined]
         size = np.diff(np.r_[np.flatnonzero(head), len(r)])
         member = np.repeat(size >= 2, size)

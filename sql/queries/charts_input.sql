@@ -6,21 +6,31 @@
 -- Names come back as integer codes into the small temp tables _bf_units, _bf_technologies and
 -- _bf_kinds that pipeline/charts/analyse.py creates (millions of strings are the slow part of a read).
 -- $through: checks with a check_id at or below it are charted already, except those of the units
--- in _bf_recharge (their points were removed to chart them again).
+-- in _bf_recharge (their points were removed to chart them again). The two are read as separate
+-- branches so that the check_id condition can skip the stored row groups below $through.
 -- Codes come back as the narrowest integers (less to convert for millions of rows).
+WITH picked AS (
+    SELECT * FROM check_results WHERE check_id > $through
+    UNION ALL
+    SELECT * FROM check_results
+    WHERE check_id <= $through AND instrument_id IN (SELECT instrument_id FROM _bf_recharge)
+), charted AS (
+    SELECT check_id FROM chart_points WHERE check_id > $through
+    UNION ALL
+    SELECT check_id FROM chart_points
+    WHERE check_id <= $through AND instrument_id IN (SELECT instrument_id FROM _bf_recharge)
+)
 SELECT r.check_id, u.unit_code, r.level, r.measured_at,
        CAST(CASE r.check_type WHEN 'control' THEN 0 WHEN 'daily' THEN 1 ELSE 2 END AS TINYINT) AS check_type_code,
        r.relative_error, r.expected, r.measured,
        CAST(t.code AS SMALLINT) AS technology_code, CAST(k.code AS SMALLINT) AS kind_code,
        CAST(r.baseline_period * 1000 + {segment_offset} AS INTEGER) AS baseline_period
-FROM check_results r
+FROM picked r
 JOIN _bf_units u ON u.instrument_id = r.instrument_id
 JOIN _bf_technologies t ON t.name = coalesce(r.technology, 'unknown')
 JOIN _bf_kinds k ON k.name = coalesce(r.standard_kind, 'unknown')
 WHERE r.check_type IN ('control', 'daily', 'verification')
   AND coalesce(r.outcome, 'pass') NOT IN ('aborted', 'invalid')
   AND r.relative_error IS NOT NULL AND isfinite(r.relative_error)
-  AND (r.check_id > $through OR r.instrument_id IN (SELECT instrument_id FROM _bf_recharge))
-  AND r.check_id NOT IN (SELECT p.check_id FROM chart_points p
-                         WHERE p.check_id > $through OR p.instrument_id IN (SELECT instrument_id FROM _bf_recharge))
+  AND r.check_id NOT IN (SELECT check_id FROM charted)
 ORDER BY u.unit_code, r.level, baseline_period, r.measured_at, r.check_id;
