@@ -44,7 +44,8 @@ def test_segments_and_grouped_sums_equal_loops():
 
 def test_key_codes_number_keys_in_order_of_appearance():
     rng = np.random.default_rng(1)
-    frame = pd.DataFrame({"a": pd.Categorical(rng.choice(["x", "y", "z"], 500)), "b": rng.choice([0.04, 0.08, np.nan], 500)})
+    frame = pd.DataFrame({"a": pd.Categorical(rng.choice(["x", "y", "z"], 500)),
+                          "b": rng.choice([0.04, 0.08, np.nan], 500)})
     code, first = key_codes(frame, ["a", "b"])
     seen: dict = {}
     for i, key in enumerate(zip(frame["a"].astype(str), frame["b"].fillna(-1.0))):

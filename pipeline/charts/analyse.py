@@ -229,7 +229,8 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
         "measured_at": of_new(frame["measured_at"].to_numpy()), "position": of_new(position).astype(np.int64),
         "relative_error": of_new(x), "z": zn, "moving_range": mr_new,
         "cusum_upper": cus.upper, "cusum_lower": cus.lower, "ewma": ew.ewma, "ewma_lcl": ew.lcl, "ewma_ucl": ew.ucl,
-        "center": of_new(center_out), "sigma": of_new(sigma_out), "sigma_source": source[new_idx] if has_old else source,
+        "center": of_new(center_out), "sigma": of_new(sigma_out),
+        "sigma_source": source[new_idx] if has_old else source,
         "cusum_upper_run": run_u, "cusum_lower_run": run_l}, copy=False)  # no block copy of 9 M rows
     # Signals on crossings: beyond the limit now, not beyond it at the group's previous check
     # (for a group's first new row: its carried state against the previous limit).
@@ -333,7 +334,8 @@ def signal_frame(base: dict, rows: np.ndarray, chart: str, rule, direction, size
     out["direction"] = _names(direction, n, SIGNAL_DIRECTIONS)
     out["size"] = np.asarray(size, dtype=float)
     when = out["measured_at"].dtype
-    out["onset_at"] = np.full(n, np.datetime64("NaT"), dtype=when) if onset_at is None else np.asarray(onset_at, dtype=when)
+    out["onset_at"] = (np.full(n, np.datetime64("NaT"), dtype=when) if onset_at is None
+                       else np.asarray(onset_at, dtype=when))
     out["onset_back"] = np.broadcast_to(np.asarray(onset_back, dtype=np.int64), (n,)).copy()
     return pd.DataFrame(out)
 

@@ -47,7 +47,8 @@ def _replicate_runs(frame: pd.DataFrame, window_minutes: float) -> tuple[np.ndar
         return None
     # Times in their own unit (no conversion of millions of values); a whole number of units is
     # within the window exactly when it is in nanoseconds.
-    window = int(window_minutes * 60e9) // int(np.timedelta64(1, np.datetime_data(t.dtype)[0]) / np.timedelta64(1, "ns"))
+    unit_ns = int(np.timedelta64(1, np.datetime_data(t.dtype)[0]) / np.timedelta64(1, "ns"))
+    window = int(window_minutes * 60e9) // unit_ns
     t = t.view(np.int64)
     inst, ctype = _codes(frame["instrument_id"]), _codes(frame["check_type"])
     level = frame["level"].to_numpy(dtype=float)
