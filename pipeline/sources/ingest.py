@@ -143,11 +143,12 @@ def _bad_condition(rules) -> str:
 
 
 def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settings: Settings,
-                  now: datetime) -> tuple[dict, str]:
+                  now: datetime) -> tuple[dict, str | None]:
     """Create _p: the stored columns of every check and its _bad flag (one pass over _src).
 
-    Returns the rules' parameters and the SQL relation of the bad rows with every parsed column,
-    which the quarantine reads: it recomputes the parse for those rows only, so _p stays narrow.
+    Returns the rules' parameters and the SQL relation of the bad rows with every parsed column
+    (None when there are none), which the quarantine reads: it recomputes the parse for those
+    rows only, so _p stays narrow.
     """
     relation, params = _checks_relation(con, profile)
     params |= {"mmin": settings.ingest.measured_min, "mmax": settings.ingest.measured_max,
@@ -156,6 +157,8 @@ def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settin
                + _hours(settings.ingest.future_tolerance_hours)}
     _exec(con, f"CREATE OR REPLACE TEMP TABLE _p AS SELECT {_STORED}, {_bad_condition(_CHECK_RULES)} AS _bad "
                f"FROM ({relation.replace(_WHERE, '')})", params)
+    if not con.execute("SELECT count(*) FROM _p WHERE _bad").fetchall()[0][0]:
+        return params, None
     return params, "(" + relation.replace(_WHERE, "WHERE line IN (SELECT line FROM _p WHERE _bad)") + ")"
 
 
@@ -252,8 +255,14 @@ def _hours(h: float):
 
 
 def _quarantine(con: duckdb.DuckDBPyConnection, file_id: int, rules, params: dict, staged: Staged,
-                source: str = "_p", value_columns: dict[str, str] | None = None) -> int:
-    """Write one quarantine row per problem; mark bad rows in _bad(line). Returns rows quarantined."""
+                source: str | None = "_p", value_columns: dict[str, str] | None = None) -> int:
+    """Write one quarantine row per problem; mark bad rows in _bad(line). Returns rows quarantined.
+
+    `source` is the relation holding the bad rows with every parsed column; None: there are none.
+    """
+    if source is None:
+        con.execute("CREATE OR REPLACE TEMP TABLE _bad (line BIGINT)")
+        return 0
     conds = [f"coalesce(({cond}), false)" for _, _, cond, _ in rules]
     _exec(con, f"CREATE OR REPLACE TEMP TABLE _flagged AS SELECT * FROM {source} WHERE {_bad_condition(rules)}", params)
     parts = [f"SELECT line, NULL AS field, _raw AS value, 'malformed_line' AS reason, "
@@ -376,7 +385,8 @@ def _store_reference(con, table: str) -> tuple[int, int]:
     return stored, good - stored
 
 
-def _parse(con, profile: SourceProfile, table: str, settings: Settings, now: datetime) -> tuple[list, dict, str]:
+def _parse(con, profile: SourceProfile, table: str, settings: Settings,
+           now: datetime) -> tuple[list, dict, str | None]:
     """Create _p (parsed records) from _src; return the quarantine rules, their parameters and the
     relation the quarantine reads the bad rows from."""
     if table == "checks":
