@@ -296,10 +296,9 @@ def _compare(con, loop: dict, run_id: int, through: int, units: list[str]) -> st
 
 
 def main() -> None:
-    import duckdb
 
     from pipeline.charts.analyse import analyse_fleet, chart_parameters
-    from pipeline.db import migrate
+    from pipeline.db import open_database
     from pipeline.settings import Settings
 
     from benchmarks.fleet import benchmark_database
@@ -307,8 +306,7 @@ def main() -> None:
     src = Path(benchmark_database())
     work = OUT / "charts-work.duckdb"
     shutil.copyfile(src, work)
-    con = duckdb.connect(str(work))
-    migrate(con)
+    con = open_database(work)   # as `breathfleet run` opens it (settings of a writer, migrations)
     for t in ("chart_points", "chart_signals", "chart_baselines", "chart_state", "chart_runs", "chart_pooled_sigma",
               "chart_groups", "chart_linearity"):
         con.execute(f"DELETE FROM {t}")  # noqa: S608

@@ -49,9 +49,16 @@ def connect(path: str | Path, *, read_only: bool = False) -> duckdb.DuckDBPyConn
         raise InputError(f"cannot open database: {exc}", file=str(path)) from exc
 
 
+# A writer checkpoints when it publishes its snapshot (publish_snapshot), not whenever a
+# commit's write-ahead log passes DuckDB's default 16 MB: a week of check_results rows crossed it
+# and the commit then spent most of an incremental update rewriting the file.
+WRITER_CHECKPOINT_THRESHOLD = "1GB"
+
+
 def open_database(path: str | Path) -> duckdb.DuckDBPyConnection:
     """Open a database for writing and bring its schema and views up to date."""
     con = connect(path)
+    con.execute(f"SET checkpoint_threshold = '{WRITER_CHECKPOINT_THRESHOLD}'")
     migrate(con)
     return con
 
