@@ -296,7 +296,6 @@ def _compare(con, loop: dict, run_id: int, through: int, units: list[str]) -> st
 
 
 def main() -> None:
-
     from pipeline.charts.analyse import analyse_fleet, chart_parameters
     from pipeline.db import open_database
     from pipeline.settings import Settings
