@@ -53,12 +53,17 @@ def connect(path: str | Path, *, read_only: bool = False) -> duckdb.DuckDBPyConn
 # commit's write-ahead log passes DuckDB's default 16 MB: a week of check_results rows crossed it
 # and the commit then spent most of an incremental update rewriting the file.
 WRITER_CHECKPOINT_THRESHOLD = "1GB"
+# DuckDB's buffer pool of a writer (default 80 % of RAM). Blocks a writer has written stay cached
+# until the limit makes it evict them; the bound keeps a whole-fleet ingest under 2 GB of memory.
+# Larger sorts and windows spill to the temp directory instead of failing.
+WRITER_MEMORY_LIMIT = "1536MB"
 
 
 def open_database(path: str | Path) -> duckdb.DuckDBPyConnection:
     """Open a database for writing and bring its schema and views up to date."""
     con = connect(path)
     con.execute(f"SET checkpoint_threshold = '{WRITER_CHECKPOINT_THRESHOLD}'")
+    con.execute(f"SET memory_limit = '{WRITER_MEMORY_LIMIT}'")
     migrate(con)
     return con
 
