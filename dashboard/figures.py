@@ -7,6 +7,8 @@ by shape or position, and each page shows the same numbers as a table.
 
 from __future__ import annotations
 
+import threading
+
 import altair as alt
 import pandas as pd
 
@@ -29,6 +31,32 @@ EVENT_COLOURS = {"calibration": OKABE_ITO["green"], "sensor_replacement": OKABE_
                  "repair": OKABE_ITO["black"], "out_of_service": OKABE_ITO["grey"],
                  "return_to_service": OKABE_ITO["grey"]}
 WIDTH = "container"
+_SPEC_LOCK = threading.Lock()  # Altair's data transformer and theme are process-wide settings
+
+
+def vega_lite_spec(chart: alt.TopLevelMixin) -> dict:
+    """The chart as a Vega-Lite dict, its data as named DataFrames under "datasets" (one per
+    distinct frame), without Altair's JSON-schema validation and without a theme's config.
+
+    st.altair_chart validates every spec against the Vega-Lite schema on each render: for a
+    layered control chart that is about half of its 0.1-0.2 s in Python. The builders here are
+    fixed code, so the tests validate their output once (tests/test_dashboard_app.py) and the
+    server skips it. Streamlit serialises the DataFrames to Arrow as it does for Altair charts.
+    """
+    datasets: dict[str, pd.DataFrame] = {}
+    names: dict[int, str] = {}
+
+    def keep(data):
+        name = names.setdefault(id(data), f"data-{len(names)}")
+        datasets[name] = data
+        return {"name": name}
+
+    with _SPEC_LOCK:
+        alt.data_transformers.register("breathfleet_named", keep)
+        with alt.data_transformers.enable("breathfleet_named"), alt.theme.enable("none"):
+            spec = chart.to_dict(validate=False)
+    spec["datasets"] = {**spec.get("datasets", {}), **datasets}
+    return spec
 
 
 def _tips(*items) -> list[alt.Tooltip]:
@@ -100,20 +128,67 @@ def _event_rules(events: pd.DataFrame | None) -> list[alt.Chart]:
         tooltip=_tips("event_at:T", "event_type:N", "notes:N"))]
 
 
+def merge_windows(signals: pd.DataFrame) -> pd.DataFrame:
+    """Signals' impact windows (onset to signal) merged where they overlap: one span per run of
+    overlapping windows, with its number of signals and the rules that fired. Run rules signal
+    on many consecutive checks, and drawn one by one their windows pile up into hundreds of
+    rectangles over the same span (each one work for the browser, none visible on its own)."""
+    if signals.empty:
+        return pd.DataFrame(columns=["onset_at", "measured_at", "n_signals", "rules"])
+    data = signals.assign(onset_at=signals["onset_at"].fillna(signals["measured_at"]))
+    data = data.sort_values(["onset_at", "measured_at"]).reset_index(drop=True)
+    data["span"] = (data["onset_at"] > data["measured_at"].cummax().shift()).cumsum()
+    span = data.groupby("span")
+    return pd.DataFrame({
+        "onset_at": span["onset_at"].min(), "measured_at": span["measured_at"].max(),
+        "n_signals": span.size(), "rules": _joined(data, "span", "rule"),
+    }).reset_index(drop=True)
+
+
+def _joined(data: pd.DataFrame, by: str, column: str) -> pd.Series:
+    """The distinct values of `column` per `by`, sorted and joined by commas. Plain Python: the
+    frames are a few hundred rows, where pandas' per-call overhead dominates."""
+    seen: dict = {}
+    for key, value in zip(data[by].tolist(), data[column].astype(str).tolist()):
+        seen.setdefault(key, set()).add(value)
+    return pd.Series({key: ", ".join(sorted(values)) for key, values in seen.items()}, dtype=object)
+
+
 def _signal_windows(signals: pd.DataFrame | None, chart: str | None = None) -> list[alt.Chart]:
+    """Shaded impact windows of a chart's signals (all charts' when chart is None), merged where they overlap."""
     if signals is None or signals.empty:
         return []
     data = signals if chart is None else signals[signals["chart"] == chart]
     if data.empty:
         return []
-    window = alt.Chart(data).mark_rect(opacity=0.15, color=OKABE_ITO["orange"]).encode(
+    return [alt.Chart(merge_windows(data)).mark_rect(opacity=0.15, color=OKABE_ITO["orange"]).encode(
         x=alt.X("onset_at:T"), x2=alt.X2("measured_at"),
-        tooltip=_tips("chart:N", "rule:N", "direction:N", "onset_at:T", "measured_at:T", "impact_checks:Q"))
-    mark = alt.Chart(data).mark_point(shape="triangle-down", filled=True, size=90,
-                                      color=OKABE_ITO["orange"]).encode(
-        x=alt.X("measured_at:T"), y=alt.YValue(6),
-        tooltip=_tips("chart:N", "rule:N", "direction:N", "measured_at:T"))
-    return [window, mark]
+        tooltip=_tips(alt.Tooltip("onset_at:T", title="impact from"), alt.Tooltip("measured_at:T", title="to"),
+                      alt.Tooltip("n_signals:Q", title="signals"), "rules:N"))]
+
+
+def _flagged_points(data: pd.DataFrame, value: str, beyond: pd.Series, signals: pd.DataFrame | None,
+                    chart: str, tips: list) -> list[alt.Chart]:
+    """Markers on the checks beyond a limit or where the chart signalled, with their values; the
+    line itself carries no point marks (hundreds of them, one per check, at a pixel apart)."""
+    fired = pd.Series(False, index=data.index)
+    rules = pd.Series("", index=data.index)
+    if signals is not None and not signals.empty and "check_id" in data:
+        by_check = _joined(signals[signals["chart"] == chart], "check_id", "rule")
+        rules = data["check_id"].map(by_check).astype(object)
+        fired = rules.notna()
+        rules = rules.where(fired, "")
+    flag = beyond.to_numpy() | fired.to_numpy()
+    if not flag.any():
+        return []
+    marks = data[flag].assign(flag=beyond[flag].map({True: "beyond a limit", False: "signal"}), rule=rules[flag])
+    states = ["beyond a limit", "signal"]
+    return [alt.Chart(marks).mark_point(filled=True, size=40).encode(
+        x=alt.X("measured_at:T"), y=alt.Y(f"{value}:Q"),
+        color=alt.Color("flag:N", title="marked", scale=alt.Scale(domain=states, range=[OKABE_ITO["vermillion"],
+                                                                                        OKABE_ITO["orange"]])),
+        shape=alt.Shape("flag:N", title="marked", scale=alt.Scale(domain=states, range=["diamond", "triangle-up"])),
+        tooltip=_tips(*tips, "flag:N", "rule:N"))]
 
 
 def relative_error_chart(checks: pd.DataFrame, tolerance_pct: float, events: pd.DataFrame | None = None,
@@ -168,19 +243,21 @@ def _steps(points: pd.DataFrame, column: str) -> pd.DataFrame:
 def _limit_lines(points: pd.DataFrame, value: str, limits: list[str], y_title: str, title: str,
                  events: pd.DataFrame | None, signals: pd.DataFrame | None, chart: str) -> alt.LayerChart:
     x = alt.X("measured_at:T", title="measured at (UTC)")
-    data = points[["measured_at", value, *limits]]
+    data = points[[c for c in ("check_id", "measured_at", value, *limits) if c in points]]
     beyond = (data[value] < data[limits[0]]) if len(limits) == 2 else pd.Series(False, index=data.index)
-    beyond = beyond | (data[value] > data[limits[-1]])
-    drawn = thin_line(data.assign(_beyond=beyond), value, keep=["_beyond"]).drop(columns="_beyond")
-    line = alt.Chart(drawn).mark_line(
-        color=OKABE_ITO["blue"], strokeWidth=1, point=alt.OverlayMarkDef(size=14, color=OKABE_ITO["blue"])).encode(
-        x=x, y=alt.Y(f"{value}:Q", title=y_title),
-        tooltip=_tips("measured_at:T", *[alt.Tooltip(f"{c}:Q", format=".3f") for c in [value, *limits]]))
+    beyond = (beyond | (data[value] > data[limits[-1]])).fillna(False)
+    drawn = thin_line(data[["measured_at", value]].assign(_beyond=beyond), value, keep=["_beyond"])
+    line = alt.Chart(drawn.drop(columns="_beyond")).mark_line(color=OKABE_ITO["blue"], strokeWidth=1).encode(
+        x=x, y=alt.Y(f"{value}:Q", title=y_title))
     rules = [alt.Chart(_steps(points, c)).mark_line(color=OKABE_ITO["vermillion"], strokeDash=[5, 3],
                                                     interpolate="step-after").encode(x=x, y=alt.Y(f"{c}:Q"))
              for c in limits]
-    return alt.layer(*_signal_windows(signals, chart), line, *rules, *_event_rules(events)).properties(
-        width=WIDTH, height=200, title=title)
+    tips = ["measured_at:T", *[alt.Tooltip(f"{c}:Q", format=".3f") for c in [value, *limits]]]
+    marks = _flagged_points(data, value, beyond, signals, chart, tips)
+    # properties passed to the layer itself: each .properties() or .resolve_scale() deep-copies every layer
+    return alt.layer(*_signal_windows(signals, chart), line, *rules, *marks, *_event_rules(events),
+                     resolve=alt.Resolve(scale=alt.ScaleResolveMap(color="independent", shape="independent")),
+                     width=WIDTH, height=200, title=title)
 
 
 def individuals_chart(points, events=None, signals=None) -> alt.LayerChart:
@@ -205,8 +282,17 @@ def cusum_chart(points: pd.DataFrame, h: float | None, events=None, signals=None
         x=alt.X("measured_at:T", title="measured at (UTC)"), y=alt.Y("value:Q", title="CUSUM (sigma units)"),
         color=alt.Color("side:N", scale=alt.Scale(domain=["upper", "lower"],
                                                    range=[OKABE_ITO["blue"], OKABE_ITO["green"]])),
-        strokeDash=alt.StrokeDash("side:N", legend=None), tooltip=_tips("measured_at:T", "side:N", "value:Q"))
+        strokeDash=alt.StrokeDash("side:N", legend=None))
     layers = [*_signal_windows(signals, "cusum"), base]
+    own = None if signals is None or "check_id" not in points else signals[signals["chart"] == "cusum"]
+    if own is not None and not own.empty:  # a marker on the side that crossed h, at each signal
+        hit = points[["check_id", "measured_at", "cusum_upper", "cusum_lower"]].merge(
+            own[["check_id", "rule", "direction"]], on="check_id")
+        hit = hit.assign(value=hit["cusum_upper"].where(hit["direction"].ne("down"), -hit["cusum_lower"].abs()))
+        layers.append(alt.Chart(hit).mark_point(filled=True, size=40, shape="triangle-up",
+                                                color=OKABE_ITO["orange"]).encode(
+            x=alt.X("measured_at:T"), y=alt.Y("value:Q"),
+            tooltip=_tips("measured_at:T", "rule:N", "direction:N", alt.Tooltip("value:Q", format=".2f"))))
     if h is not None:
         hlines = pd.DataFrame({"y": [h, -h]})
         layers.append(alt.Chart(hlines).mark_rule(color=OKABE_ITO["vermillion"], strokeDash=[5, 3])

@@ -5,7 +5,7 @@ from __future__ import annotations
 import pandas as pd
 import streamlit as st
 
-from dashboard import loaders
+from dashboard import figures, loaders
 from pipeline.errors import DatabaseLockedError, InputError
 
 CAUTIONS = ("Cautions: these results inform maintenance and oversight. They do not certify or "
@@ -81,13 +81,44 @@ CANVAS = {"embedOptions": {"renderer": "canvas"}}  # read by vega-embed from the
 def chart(ch, key: str | None = None) -> None:
     """Render an Altair chart at container width, drawn on a canvas: with thousands of marks an
     SVG (vega-embed's default here) costs the browser one DOM node per mark. The chart's title
-    becomes its description, which Vega gives the canvas as its accessible name (aria-label)."""
-    title = getattr(ch, "title", None)
-    extra = {"description": title} if isinstance(title, str) else {}
-    st.altair_chart(ch.properties(usermeta=CANVAS, **extra), width="stretch", key=key)
+    becomes its description, which Vega gives the canvas as its accessible name (aria-label).
+    The spec is converted without schema validation (figures.vega_lite_spec)."""
+    spec = figures.vega_lite_spec(ch)
+    spec["usermeta"] = CANVAS
+    # No ARIA descriptions per mark: Vega-Lite would otherwise compute a description string for
+    # every point (all its fields, formatted), which a canvas never shows; the chart keeps its
+    # accessible name (the description below) and its data tables.
+    spec["config"] = {**spec.get("config", {}), "aria": False}
+    if isinstance(spec.get("title"), str):
+        spec["description"] = spec["title"]
+    st.vega_lite_chart(spec, width="stretch", key=key)
+
+
+STATIC_TABLE_ROWS = 200  # up to this many rows a table is static HTML rather than an interactive grid
+TABLE_STYLE = ("<style>.bf-table{border-collapse:collapse;font-size:0.85rem;margin-bottom:0.5rem}"
+               ".bf-table th,.bf-table td{padding:0.15rem 0.6rem;border-bottom:1px solid rgba(128,128,128,0.25);"
+               "text-align:right;white-space:nowrap}.bf-table th{font-weight:600;position:sticky;top:0;"
+               "background:var(--background-color,#fff)}.bf-scroll{max-height:26rem;overflow:auto}</style>")
+
+
+def table(df: pd.DataFrame, static_rows: int = STATIC_TABLE_ROWS) -> None:
+    """A table: static HTML when it has at most `static_rows` rows, else the interactive grid.
+
+    Each st.dataframe grid costs the browser a lazily loaded component, a canvas, column
+    measuring and scroll handling (about 0.1 s apiece on the unit page, which shows several);
+    a static table of a few dozen rows costs a fraction of that, and a screen reader reads it
+    as a table. Cell text is escaped by pandas and sanitised again by st.html.
+    """
+    if len(df) <= static_rows:
+        html = df.astype(object).where(df.notna(), "").to_html(index=False, border=0, classes="bf-table")
+        # a long or wide table scrolls in its own box, as the grid would, instead of stretching the page
+        st.html(f'{TABLE_STYLE}<div class="bf-scroll">{html}</div>')
+    else:
+        st.dataframe(df, hide_index=True, width="stretch")
 
 
 def table_alternative(df: pd.DataFrame, label: str = "Same data as a table") -> None:
-    """A text alternative to a chart: its data as a table in an expander."""
+    """A text alternative to a chart: its data as a table in an expander (static up to 500 rows:
+    a collapsed expander's static table costs no layout until it is opened)."""
     with st.expander(label):
-        st.dataframe(df, hide_index=True, width="stretch")
+        table(df, static_rows=500)

@@ -17,6 +17,7 @@ import pandas as pd
 import streamlit as st
 
 from dashboard import loaders
+from pipeline.db import query_df
 from pipeline.errors import InputError
 
 
@@ -83,37 +84,47 @@ def forecast_sentence(estimate: pd.Series, tolerance_pct: float, horizon_days: i
 
 
 @st.cache_data(max_entries=64, show_spinner=False)
-def _budget(token: loaders.DataToken, instrument_id: str, level: float):
-    fn = _function("pipeline.standards.uncertainty", "compute_uncertainty_budget")
-    if fn is None:
+def _budget(token: loaders.DataToken, instrument_id: str, as_of: pd.Timestamp):
+    """Every level's budget of the unit as of its last check (one entry per unit, whichever level
+    the page shows). compute_uncertainty_budget would first look up the last check in checks,
+    which at 10 million rows means a full scan; the page knows it already (dashboard_unit_levels),
+    so the adapter runs the budget's own query and pure function directly."""
+    build = _function("pipeline.standards.uncertainty", "budget_from_checks")
+    if build is None:
         return None
+    when = pd.Timestamp(as_of).to_pydatetime()
     with loaders.reader_connection() as con:
-        budget = fn(con, loaders.settings(), instrument_id)
-    match = [lv for lv in budget.levels if round(lv.level, 3) == round(level, 3)]
-    if not match:
-        return {"summary": None, "components": None, "warnings": list(budget.warnings),
-                "baseline_period": budget.baseline_period}
-    lv = match[0]
-    components = pd.DataFrame([dataclasses.asdict(c) for c in lv.components])
-    summary = {"n_checks": lv.n_checks, "bias_pct": 100 * lv.bias_relative,
-               "combined_standard_uncertainty": lv.combined_standard_uncertainty,
-               "coverage_factor": lv.coverage_factor, "expanded_uncertainty": lv.expanded_uncertainty,
-               "relative_expanded_pct": 100 * lv.relative_expanded_uncertainty,
-               "first_check_at": lv.first_check_at, "last_check_at": lv.last_check_at}
-    return {"summary": summary, "components": components, "warnings": list(lv.warnings) + list(budget.warnings),
-            "baseline_period": budget.baseline_period}
+        checks = query_df(con, "queries/standards_budget_checks", instrument_id=instrument_id, as_of=when)
+    budget = build(checks, loaders.settings(), instrument_id=instrument_id, as_of=when)
+    levels = {}
+    for lv in budget.levels:
+        summary = {"n_checks": lv.n_checks, "bias_pct": 100 * lv.bias_relative,
+                   "combined_standard_uncertainty": lv.combined_standard_uncertainty,
+                   "coverage_factor": lv.coverage_factor, "expanded_uncertainty": lv.expanded_uncertainty,
+                   "relative_expanded_pct": 100 * lv.relative_expanded_uncertainty,
+                   "first_check_at": lv.first_check_at, "last_check_at": lv.last_check_at}
+        levels[round(lv.level, 3)] = {
+            "summary": summary, "components": pd.DataFrame([dataclasses.asdict(c) for c in lv.components]),
+            "warnings": list(lv.warnings) + list(budget.warnings), "baseline_period": budget.baseline_period}
+    return {"levels": levels, "warnings": list(budget.warnings), "baseline_period": budget.baseline_period}
 
 
-def uncertainty_budget(instrument_id: str, level: float) -> dict | None:
-    """The unit's GUM uncertainty budget at `level` (current baseline period) from
-    pipeline.standards.uncertainty: summary, components table and warnings; None if unavailable."""
+def uncertainty_budget(instrument_id: str, level: float, as_of: pd.Timestamp) -> dict | None:
+    """The unit's GUM uncertainty budget at `level` (baseline period current at `as_of`, the
+    unit's last check) from pipeline.standards.uncertainty: summary, components table and
+    warnings; None if unavailable."""
     token = loaders.data_token()
     if token is None or not loaders.has_tables("checks", "check_results"):
         return None
     try:
-        return _budget(token, instrument_id, float(level))
+        budget = _budget(token, instrument_id, pd.Timestamp(as_of))
     except InputError as exc:
         return {"summary": None, "components": None, "warnings": [str(exc)], "baseline_period": None}
+    if budget is None:
+        return None
+    return budget["levels"].get(round(float(level), 3)) or {
+        "summary": None, "components": None, "warnings": budget["warnings"],
+        "baseline_period": budget["baseline_period"]}
 
 
 def instrument_record(instrument_id: str, start: dt.date | None, end: dt.date | None):

@@ -190,8 +190,12 @@ def tolerance_pct() -> float:
 
 
 def data_range() -> dict[str, Any] | None:
-    """First and last check, counts of checks and units; None when no checks table or no rows."""
-    df = load("dashboard_data_range")
+    """First and last check, counts of checks and units; None when no checks table or no rows.
+    From the fleet summaries plus newer checks when the summaries exist and no check was removed
+    since (dashboard_data_range_summary), else from every check (dashboard_data_range)."""
+    df = load("dashboard_data_range_summary")
+    if df is None or df.empty or not bool(df["summary_current"].fillna(False).iloc[0]):
+        df = load("dashboard_data_range")
     if df is None or df.empty or pd.isna(df.loc[0, "first_check_at"]):
         return None
     return df.iloc[0].to_dict()

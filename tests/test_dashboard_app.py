@@ -8,6 +8,7 @@ import subprocess
 import sys
 import textwrap
 import time
+from html.parser import HTMLParser
 from pathlib import Path
 
 import pandas as pd
@@ -51,6 +52,45 @@ def charts(at: AppTest) -> list[dict]:
         spec["_data"] = {d.name: pa.ipc.open_stream(d.data.data).read_all().to_pandas()
                          for d in element.proto.datasets}
         out.append(spec)
+    return out
+
+
+class _TableRows(HTMLParser):
+    """The rows of the HTML tables that frame.table writes (st.html), cell text only."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.rows: list[list[str]] = []
+        self._row: list[str] | None = None
+        self._cell: list[str] | None = None
+
+    def handle_starttag(self, tag, attrs):
+        if tag == "tr":
+            self._row = []
+        elif tag in ("td", "th") and self._row is not None:
+            self._cell = []
+
+    def handle_endtag(self, tag):
+        if tag in ("td", "th") and self._cell is not None and self._row is not None:
+            self._row.append("".join(self._cell).strip())
+            self._cell = None
+        elif tag == "tr" and self._row is not None:
+            self.rows.append(self._row)
+            self._row = None
+
+    def handle_data(self, data):
+        if self._cell is not None:
+            self._cell.append(data)
+
+
+def html_tables(at: AppTest) -> list[pd.DataFrame]:
+    """Each static table on the page (frame.table), in page order, as text."""
+    out = []
+    for element in at.get("html"):
+        parser = _TableRows()
+        parser.feed(element.proto.body)
+        if parser.rows:
+            out.append(pd.DataFrame(parser.rows[1:], columns=parser.rows[0]))
     return out
 
 
@@ -133,6 +173,7 @@ def test_queue_opens_the_chosen_unit(monkeypatch, fleet_db):
 def test_unit_page_charts_carry_limits_events_and_signals(monkeypatch, fleet_db):
     at = run_page(monkeypatch, fleet_db, "unit", {"unit": "TX1000"})
     assert not at.exception
+    at.radio(key="unit_window").set_value("All").run()
     individuals = chart_titled(at, "Individuals")
     assert {"ind_lcl", "ind_ucl", "event_at"} <= fields(individuals)
     events = pd.concat([d for d in individuals["_data"].values() if "event_type" in d])
@@ -154,6 +195,7 @@ def test_unit_page_charts_carry_limits_events_and_signals(monkeypatch, fleet_db)
 
 def test_unit_level_choice_changes_the_chart(monkeypatch, fleet_db):
     at = run_page(monkeypatch, fleet_db, "unit", {"unit": "TX1003"})
+    at.radio(key="unit_chart").set_value("Relative error").run()
     before = next(iter(chart_titled(at, "Checks: relative error")["_data"].values()))
     other = [v for v in at.selectbox(key="unit_level").options if not v.startswith("0.080")][0]
     at.selectbox(key="unit_level").set_value(float(other.split()[0])).run()
@@ -179,10 +221,10 @@ def test_lots_page_shows_verdicts_and_leads_to_units(monkeypatch, fleet_db):
     effects = chart_titled(at, "Lot effects")
     data = next(d for d in effects["_data"].values() if "verdict" in d)
     assert set(data["verdict"]) == {"agrees", "off"}
-    table = at.dataframe[0].value
+    table = html_tables(at)[0]
     assert table.loc[table["lot_id"] == "WB-B1", "state"].item() == "rejected"
     at.selectbox(key="lots_pick").select("WB-B1").run()
-    users = at.dataframe[-1].value
+    users = html_tables(at)[-1]
     assert set(users["instrument_id"]) == {"TX1000", "TX1004", "TX1008", "TX1012", "TX1016", "TX1020"}
     at.button(key="lots_open_unit").click().run()
     assert at.title[0].value == "Unit"
@@ -193,7 +235,7 @@ def test_data_quality_page(monkeypatch, fleet_db):
     reasons = next(iter(chart_titled(at, "Quarantined rows by reason")["_data"].values()))
     assert set(reasons["reason"]) == {"unparsable_field", "out_of_range"}
     at.selectbox(key="dq_reason").select("out_of_range").run()
-    samples = [d.value for d in at.dataframe if "raw_line" in d.value.columns]
+    samples = [t for t in html_tables(at) if "raw_line" in t.columns]
     assert samples and set(samples[0]["reason"]) == {"out_of_range"}
 
 
@@ -380,3 +422,75 @@ def test_limit_steps_keep_every_change():
     # common practice: a step-after line through the change points draws the same limit
     redrawn = pd.merge_asof(points[["measured_at"]], steps, on="measured_at")
     assert (redrawn["ewma_ucl"] == points["ewma_ucl"]).all() and len(steps) < len(points)
+
+
+def test_data_range_from_summaries_equals_the_count_over_every_check(tmp_path):
+    import duckdb
+
+    from pipeline.db import sql_text
+    db = build_fleet_db(tmp_path / "range.duckdb", n_units=3, days=20)
+    con = duckdb.connect(str(db))
+    try:
+        def both():
+            fast = con.execute(sql_text("queries/dashboard_data_range_summary")).fetchone()
+            full = con.execute(sql_text("queries/dashboard_data_range")).fetchone()
+            return fast, full
+        fast, full = both()
+        assert fast[:4] == full and fast[4] is True
+        # checks stored after the main job, one of them from a unit the summaries do not know yet
+        con.execute("INSERT INTO checks SELECT check_id + 100000, CASE WHEN check_id = 0 THEN 'TX9999' "
+                    "ELSE instrument_id END, measured_at + INTERVAL 30 DAY, lot_id, check_type, target, measured, "
+                    "units, simulator_temp_c, pressure_kpa, site_id, operator_id, outcome, file_id, line "
+                    "FROM checks WHERE check_id < 5")
+        fast, full = both()
+        assert fast[:4] == full and full[3] == 4 and fast[4] is True
+        con.execute("DELETE FROM checks WHERE check_id < 100")  # removed since the summaries: not current
+        assert both()[0][4] is False
+    finally:
+        con.close()
+
+
+def _valid_vega_lite(spec: dict) -> None:
+    from altair.utils.schemapi import validate_jsonschema
+    from altair.vegalite.v6.schema.core import load_schema
+    schema = load_schema()
+    validate_jsonschema({k: v for k, v in spec.items() if k != "_data"}, schema, rootschema=schema)
+
+
+@pytest.mark.parametrize("page,chart", [("fleet", None), ("comparison", None), ("lots", None),
+                                        ("data_quality", None), ("unit", "Individuals / moving range"),
+                                        ("unit", "CUSUM"), ("unit", "EWMA"), ("unit", "Relative error")])
+def test_every_chart_is_valid_vega_lite(monkeypatch, fleet_db, page, chart):
+    # the server converts charts without Altair's schema validation (figures.vega_lite_spec): it is done here
+    at = run_page(monkeypatch, fleet_db, page, {"unit": "TX1000"} if page == "unit" else None)
+    if chart is not None:
+        at.radio(key="unit_chart").set_value(chart).run()
+    specs = charts(at)
+    assert specs
+    for spec in specs:
+        _valid_vega_lite(spec)
+        assert spec["config"]["aria"] is False and spec["usermeta"]["embedOptions"]["renderer"] == "canvas"
+
+
+def test_unit_page_opens_on_the_latest_90_days(monkeypatch, fleet_db):
+    at = run_page(monkeypatch, fleet_db, "unit", {"unit": "TX1000"})
+    line = next(d for d in chart_titled(at, "Individuals")["_data"].values() if "z" in d)
+    # the fixture's TX1000 has one check a day at 0.080 g/210L for 180 days
+    assert 85 <= len(line) <= 91
+    assert line["measured_at"].max() - line["measured_at"].min() <= pd.Timedelta(days=90)
+    at.radio(key="unit_window").set_value("All").run()
+    line = next(d for d in chart_titled(at, "Individuals")["_data"].values() if "z" in d)
+    assert len(line) == 180
+    assert any("Showing 180 charted checks of the 180" in c.value for c in at.caption)
+
+
+def test_overlapping_impact_windows_merge_into_spans():
+    t = pd.Timestamp("2026-03-01")
+    signals = pd.DataFrame({"onset_at": [t, t + pd.Timedelta(days=2), t + pd.Timedelta(days=9)],
+                            "measured_at": [t + pd.Timedelta(days=3), t + pd.Timedelta(days=5), t + pd.Timedelta(days=10)],
+                            "rule": ["WE2", "WE1", "limit"]})
+    spans = figures.merge_windows(signals.iloc[::-1])
+    # common practice: overlapping intervals are drawn as their union
+    assert spans[["onset_at", "measured_at"]].values.tolist() == [[t, t + pd.Timedelta(days=5)],
+                                                                  [t + pd.Timedelta(days=9), t + pd.Timedelta(days=10)]]
+    assert spans["n_signals"].tolist() == [2, 1] and spans["rules"].tolist() == ["WE1, WE2", "limit"]

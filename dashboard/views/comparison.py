@@ -41,4 +41,4 @@ if n_units > len(units):
 st.caption(note)
 outside = units[units["z"].abs() > 1.959964]
 st.subheader(f"Units outside the 95 % limits ({len(outside):,})")
-st.dataframe(outside, hide_index=True, width="stretch")
+frame.table(outside)

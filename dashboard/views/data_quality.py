@@ -20,7 +20,7 @@ else:
     unbalanced = int((~ledger["balanced"]).sum())
     if unbalanced:
         st.warning(f"{unbalanced} files do not balance (read ≠ stored + duplicate + quarantined).")
-    st.dataframe(ledger, hide_index=True, width="stretch")
+    frame.table(ledger)
 
 st.subheader("Quarantine")
 reasons = loaders.load("dashboard_quarantine_reasons")
@@ -32,8 +32,7 @@ else:
     frame.chart(figures.quarantine_chart(reasons), key="quarantine_reasons")
     frame.table_alternative(reasons)
     reason = st.selectbox("Sample rows for reason", reasons["reason"].tolist(), key="dq_reason")
-    st.dataframe(loaders.load("dashboard_quarantine_sample", reason=reason), hide_index=True,
-                 width="stretch")
+    frame.table(loaders.load("dashboard_quarantine_sample", reason=reason))
 
 st.subheader("Silent units")
 days = loaders.settings().queue.silence_days
@@ -44,7 +43,7 @@ elif silent.empty:
     st.write(f"Every unit has a check in the last {days} days of data.")
 else:
     st.caption(f"{len(silent):,} units without a check in the last {days} days of data.")
-    st.dataframe(silent, hide_index=True, width="stretch")
+    frame.table(silent)
 
 st.subheader("Verdict disagreements")
 frame.summary_note(rng)
@@ -55,4 +54,4 @@ elif disagree.empty:
     st.write("The units' own pass/fail agrees with breathfleet's verdict on every check.")
 else:
     st.caption("Checks where the unit's own pass/fail differs from breathfleet's tolerance verdict, by unit.")
-    st.dataframe(disagree, hide_index=True, width="stretch")
+    frame.table(disagree)

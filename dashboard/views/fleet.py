@@ -33,9 +33,12 @@ if region != "All regions" and len(shown) <= loaders.MAX_POINTS:
                                           "last_check_at"]]), key="unit_tiles")
 else:
     st.caption("Choose a region to see every unit by site.")
-by_site = loaders.state_counts(shown, ["region", "site_id"]).pivot_table(
-    index=["region", "site_id"], columns="state", values="units", fill_value=0).reset_index()
-frame.table_alternative(by_site, "Units by site and state (table)")
+# The table says what the charts above show: states by region for the whole fleet, by site once
+# a region is chosen (a fleet of thousands of units has about two thousand sites).
+by = ["region"] if region == "All regions" else ["region", "site_id"]
+counts = loaders.state_counts(shown, by).pivot_table(index=by, columns="state", values="units",
+                                                     fill_value=0).reset_index()
+frame.table_alternative(counts, f"Units by {'region' if len(by) == 1 else 'site'} and state (table)")
 
 st.subheader("Signals in the last 7 days of data")
 signals = loaders.load("dashboard_signals_recent", days=7)
@@ -46,7 +49,7 @@ elif signals.empty:
 else:
     if region != "All regions":
         signals = signals[signals["region"] == region]
-    st.dataframe(signals, hide_index=True, width="stretch")
+    frame.table(signals)
 
 st.subheader("Fleet-wide relative error")
 trend = loaders.load("dashboard_fleet_trend")

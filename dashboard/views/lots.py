@@ -29,7 +29,7 @@ if acceptance is None:
     st.caption("New-lot acceptance has not been computed yet.")
 else:
     table = table.merge(acceptance, on="lot_id", how="left")
-st.dataframe(table, hide_index=True, width="stretch")
+frame.table(table)
 
 variance = loaders.load("dashboard_variance_components")
 if not frame.missing(variance):
@@ -49,4 +49,4 @@ else:
     chosen = left.selectbox("Unit", users["instrument_id"].tolist(), key="lots_unit")
     if right.button("Open unit page", key="lots_open_unit"):
         st.switch_page("views/unit.py", query_params={"unit": str(chosen)})
-    st.dataframe(users, hide_index=True, width="stretch")
+    frame.table(users)

@@ -16,6 +16,32 @@ def _reasons(value) -> str:
     return " ".join(str(x) for x in items)
 
 
+FILTERS = {"region": "Region", "technology": "Technology", "site_id": "Site"}
+
+
+def _filtered(queue: pd.DataFrame, chosen: dict[str, list[str]]) -> pd.DataFrame:
+    for name, values in chosen.items():
+        if values:
+            queue = queue[queue[name].astype(str).isin(values)]
+    return queue
+
+
+# A click that opens a unit (the button, or a row of the table) is handled first, before the
+# page draws anything: the rerun it causes then switches page at once, instead of first
+# parsing the reasons and sending the 5,000-row queue to the browser again.
+if st.session_state.get("queue_open_button") and st.session_state.get("queue_open_unit") is not None:
+    st.switch_page("views/unit.py", query_params={"unit": str(st.session_state["queue_open_unit"])})
+try:
+    picked = list(st.session_state["queue_table"]["selection"]["rows"])
+except (KeyError, TypeError):
+    picked = []
+if picked:
+    queue = loaders.load("dashboard_queue")
+    if queue is not None:
+        rows = _filtered(queue, {name: st.session_state.get(f"queue_{name}") or [] for name in FILTERS})
+        if picked[0] < len(rows):
+            st.switch_page("views/unit.py", query_params={"unit": str(rows.iloc[picked[0]]["instrument_id"])})
+
 frame.header("Service queue", "Which units to visit first, and why?")
 queue = loaders.load("dashboard_queue")
 if frame.missing(queue):
@@ -25,26 +51,13 @@ if frame.missing(queue):
 queue = queue.assign(reasons=queue["reasons"].map(_reasons))
 cols = st.columns(3)
 filters = {}
-for col, name, label in zip(cols, ["region", "technology", "site_id"], ["Region", "Technology", "Site"]):
+for col, (name, label) in zip(cols, FILTERS.items()):
     options = sorted(queue[name].dropna().astype(str).unique())
     filters[name] = col.multiselect(label, options, key=f"queue_{name}")
-shown = queue
-for name, chosen in filters.items():
-    if chosen:
-        shown = shown[shown[name].astype(str).isin(chosen)]
+shown = _filtered(queue, filters)
 
 table = shown[["rank", "instrument_id", "region", "site_id", "technology", "p_breach", "rank_low",
                "rank_high", "reasons"]]
-# A click that opens a unit is handled before the table is drawn: the rerun it causes then
-# switches page at once instead of first sending the whole queue to the browser again.
-try:
-    picked = list(st.session_state["queue_table"]["selection"]["rows"])
-except (KeyError, TypeError):
-    picked = []
-if picked and picked[0] < len(table):
-    st.switch_page("views/unit.py", query_params={"unit": str(table.iloc[picked[0]]["instrument_id"])})
-if st.session_state.get("queue_open_button") and st.session_state.get("queue_open_unit") is not None:
-    st.switch_page("views/unit.py", query_params={"unit": str(st.session_state["queue_open_unit"])})
 
 computed = pd.Timestamp(queue["computed_at"].max())
 st.caption(f"Queue computed at {computed:%Y-%m-%d %H:%M} UTC · {len(shown):,} of {len(queue):,} units shown. "

@@ -1,12 +1,14 @@
 """Unit: one instrument's control charts with its events and signals, the model's bias and
 drift, the forecast to tolerance, the uncertainty budget and its instrument record."""
 
-import json
-
 import pandas as pd
 import streamlit as st
 
 from dashboard import figures, frame, library, loaders
+
+WINDOWS = {"90 days": 90, "180 days": 180, "1 year": 365, "All": None}
+DEFAULT_WINDOW = "90 days"
+CHARTS = ["Individuals / moving range", "CUSUM", "EWMA", "Relative error"]
 
 frame.header("Unit", "Is this unit drifting, since when, and is it the unit or its lot?")
 units = loaders.load("dashboard_unit_list")
@@ -21,47 +23,70 @@ unit_id = st.selectbox("Unit", ids, index=index, key=f"unit_pick_{wanted}")
 if unit_id != wanted:
     st.query_params["unit"] = unit_id
 info = units[units["instrument_id"] == unit_id].iloc[0]
-since = pd.Timestamp(info["in_service_on"]) if pd.notna(info["in_service_on"]) else None
+in_service = pd.Timestamp(info["in_service_on"]) if pd.notna(info["in_service_on"]) else None
 st.markdown(f"**{unit_id}** · {info['technology']} {info['model'] or ''} · site {info['site_id']} · "
-            f"region {info['region']}" + (f" · in service since {since:%Y-%m-%d}" if since is not None else ""))
+            f"region {info['region']}" + (f" · in service since {in_service:%Y-%m-%d}" if in_service is not None else ""))
 
 levels = loaders.load("dashboard_unit_levels", instrument_id=unit_id)
 if frame.missing(levels):
     st.info("This unit has no checks stored.")
     st.stop()
-level = st.selectbox("Level (g/210L)", levels["level"].tolist(),
-                     format_func=lambda v: f"{v:.3f} ({int(levels.loc[levels['level'] == v, 'n_checks'].iloc[0]):,} checks)",
-                     key="unit_level")
+left, right = st.columns([1, 2])
+level = left.selectbox("Level (g/210L)", levels["level"].tolist(),
+                       format_func=lambda v: f"{v:.3f} ({int(levels.loc[levels['level'] == v, 'n_checks'].iloc[0]):,} checks)",
+                       key="unit_level")
+# The charts open on the latest months: a unit checked daily for years has thousands of checks
+# per level, and every point, signal window and tooltip is work for the browser. The control
+# widens the window up to the whole record (its latest MAX_POINTS checks).
+window = right.radio("Time shown", list(WINDOWS), index=list(WINDOWS).index(DEFAULT_WINDOW), horizontal=True,
+                     key="unit_window")
+at_level = levels[levels["level"] == level].iloc[0]
+days = WINDOWS[window]
+since = pd.Timestamp(at_level["first_check_at"])
+if days is not None:
+    since = max(since, pd.Timestamp(at_level["last_check_at"]) - pd.Timedelta(days=days))
+window_args = {"instrument_id": unit_id, "level": level, "since": since.to_pydatetime(),
+               "max_points": loaders.MAX_POINTS}
 
 events = loaders.load("dashboard_unit_events", instrument_id=unit_id)
 if events is not None:  # service events, and lot changes at the level shown
     events = events[events["level"].isna() | (events["level"].round(3) == round(level, 3))]
-signals = loaders.load("dashboard_unit_signals", instrument_id=unit_id)
+signals = loaders.load("dashboard_unit_signals", instrument_id=unit_id, since=since.to_pydatetime())
 level_signals = None if signals is None else signals[signals["level"].round(3) == round(level, 3)]
-checks = loaders.load("dashboard_unit_checks", instrument_id=unit_id, level=level, max_points=loaders.MAX_POINTS)
-if len(checks) == loaders.MAX_POINTS:
-    st.caption(f"Showing the latest {loaders.MAX_POINTS:,} checks at this level.")
-if not checks.empty:
-    events_in = None if events is None else events[events["event_at"] >= checks["measured_at"].min()]
-    frame.chart(figures.relative_error_chart(checks, loaders.tolerance_pct(), events_in, level_signals),
-                key="unit_relative_error")
 
-st.subheader("Control charts")
-points = loaders.load("dashboard_unit_points", instrument_id=unit_id, level=level, max_points=loaders.MAX_POINTS)
-if frame.missing(points):
-    frame.not_computed("Control charts for this unit and level", "Run the chart analysis (`breathfleet analyse`).")
+
+def _shown(data: pd.DataFrame, what: str) -> None:
+    first = f" from {pd.Timestamp(data['measured_at'].min()):%Y-%m-%d}" if not data.empty else ""
+    latest = f" (the latest {loaders.MAX_POINTS:,})" if len(data) == loaders.MAX_POINTS else ""
+    st.caption(f"Showing {len(data):,} {what} of the {int(at_level['n_checks']):,} at this level{first}{latest}.")
+
+
+st.subheader("Charts")
+# One chart at a time: the browser draws only what is looked at.
+kind = st.radio("Chart", CHARTS, horizontal=True, key="unit_chart")
+if kind == "Relative error":
+    checks = loaders.load("dashboard_unit_checks", **window_args)
+    _shown(checks, "checks")
+    if not checks.empty:
+        events_in = None if events is None else events[events["event_at"] >= checks["measured_at"].min()]
+        frame.chart(figures.relative_error_chart(checks, loaders.tolerance_pct(), events_in, level_signals),
+                    key="unit_relative_error")
 else:
-    events_in = None if events is None else events[events["event_at"] >= points["measured_at"].min()]
+    points = loaders.load("dashboard_unit_points", **window_args)
     baselines = loaders.load("dashboard_unit_baselines", instrument_id=unit_id)
-    h = library.cusum_h(baselines, level)
-    kind = st.radio("Chart", ["Individuals / moving range", "CUSUM", "EWMA"], horizontal=True, key="unit_chart")
-    if kind == "CUSUM":  # one chart at a time: the browser draws only what is looked at
-        frame.chart(figures.cusum_chart(points, h, events_in, level_signals), key="unit_cusum")
-    elif kind == "EWMA":
-        frame.chart(figures.ewma_chart(points, events_in, level_signals), key="unit_ewma")
+    if frame.missing(points):
+        frame.not_computed("Control charts for this unit and level", "Run the chart analysis (`breathfleet analyse`).")
     else:
-        frame.chart(figures.individuals_chart(points, events_in, level_signals), key="unit_individuals")
-        frame.chart(figures.moving_range_chart(points, events_in, level_signals), key="unit_mr")
+        _shown(points, "charted checks")
+        events_in = None if events is None else events[events["event_at"] >= points["measured_at"].min()]
+        if kind == "CUSUM":
+            frame.chart(figures.cusum_chart(points, library.cusum_h(baselines, level), events_in, level_signals),
+                        key="unit_cusum")
+        elif kind == "EWMA":
+            frame.chart(figures.ewma_chart(points, events_in, level_signals), key="unit_ewma")
+        else:
+            frame.chart(figures.individuals_chart(points, events_in, level_signals), key="unit_individuals")
+            frame.chart(figures.moving_range_chart(points, events_in, level_signals), key="unit_mr")
     if baselines is not None and not baselines.empty:
         frame.table_alternative(baselines, "Frozen baselines (center, sigma, how they were set)")
 
@@ -72,9 +97,10 @@ st.subheader("Signals and their impact windows")
 if signals is None:
     frame.not_computed("Signals", "Run the chart analysis (`breathfleet analyse`).")
 elif signals.empty:
-    st.write("No control-chart signals for this unit.")
+    st.write("No control-chart signals for this unit in the time shown.")
 else:
-    st.dataframe(signals, hide_index=True, width="stretch")
+    st.caption(f"{len(signals):,} signals of this unit (all levels) in the time shown.")
+    frame.table(signals)
 
 st.subheader("Bias and drift (fleet model)")
 estimates = loaders.load("dashboard_unit_estimates", instrument_id=unit_id)
@@ -99,7 +125,7 @@ else:
         frame.chart(figures.forecast_chart(forecast, loaders.tolerance_pct()), key="unit_forecast")
 
 st.subheader("Uncertainty budget")
-budget = library.uncertainty_budget(unit_id, level)
+budget = library.uncertainty_budget(unit_id, level, pd.Timestamp(levels["last_check_at"].max()))
 if budget is None:
     frame.not_computed("Uncertainty budget", "It appears once the reference-standards step is installed.")
 elif budget["summary"] is None:
@@ -113,15 +139,13 @@ else:
     c[1].metric("Mean bias", f"{s['bias_pct']:+.2f} %")
     c[2].metric("Checks in the budget", f"{int(s['n_checks']):,}")
     c[2].caption(f"baseline period {budget['baseline_period']}")
-    st.dataframe(budget["components"], hide_index=True, width="stretch")
+    frame.table(budget["components"])
     for w in budget["warnings"]:
         st.caption(f"Warning: {w}")
 
 st.subheader("Instrument record")
-start = st.date_input("From", value=pd.Timestamp(checks["measured_at"].min()).date() if not checks.empty else None,
-                      key="record_start")
-end = st.date_input("To", value=pd.Timestamp(checks["measured_at"].max()).date() if not checks.empty else None,
-                    key="record_end")
+start = st.date_input("From", value=pd.Timestamp(levels["first_check_at"].min()).date(), key="record_start")
+end = st.date_input("To", value=pd.Timestamp(levels["last_check_at"].max()).date(), key="record_end")
 if st.button("Prepare the instrument record", key="record_button"):
     record = library.instrument_record(unit_id, start, end)
     if record is None:

@@ -1,11 +1,11 @@
 -- name: dashboard_unit_events
 -- One row: a service event of unit $instrument_id (level NULL), or a change of reference lot seen
--- in its checks at one level.
--- requires: service_events, checks
+-- in its checks at one level (from check_results, which skips other units' row groups: see dashboard_unit_levels).
+-- requires: service_events, check_results
 WITH lot_runs AS (
-    SELECT measured_at, round(target, 3) AS level, lot_id,
-           lag(lot_id) OVER (PARTITION BY round(target, 3) ORDER BY measured_at, check_id) AS previous_lot
-    FROM checks
+    SELECT measured_at, level, lot_id,
+           lag(lot_id) OVER (PARTITION BY level ORDER BY measured_at, check_id) AS previous_lot
+    FROM check_results
     WHERE instrument_id = $instrument_id
 )
 SELECT event_at, event_type, notes, CAST(NULL AS DOUBLE) AS level

@@ -37,7 +37,7 @@ def test_queue_click_opens_the_unit_page(server, page):
     wait_for_page(page, "Unit")
     unit = page.url.split("unit=")[1]
     page.locator("strong", has_text=unit).first.wait_for(timeout=30_000)
-    assert wait_for_charts(page) >= 2
+    assert wait_for_charts(page, at_least=2) >= 2  # individuals and moving range
     page.get_by_text("CUSUM", exact=True).click()
     # charts are drawn on a canvas; Vega names it by the chart's description (its title)
     page.locator(".vega-embed[aria-label^='CUSUM']").first.wait_for(timeout=30_000)

@@ -58,6 +58,9 @@ def wait_for_page(page, title: str, timeout: float = 30_000) -> None:
         "() => !document.querySelector('[data-testid=\"stStatusWidget\"]')", timeout=timeout)
 
 
-def wait_for_charts(page, timeout: float = 30_000) -> int:
-    page.wait_for_selector(".vega-embed canvas, .vega-embed svg", timeout=timeout)
+def wait_for_charts(page, timeout: float = 30_000, at_least: int = 1) -> int:
+    """Wait until at least `at_least` charts are drawn (Vega canvas or svg); return how many are."""
+    page.wait_for_function(
+        "n => document.querySelectorAll('.vega-embed canvas, .vega-embed svg').length >= n", arg=at_least,
+        timeout=timeout)
     return page.locator(".vega-embed canvas, .vega-embed svg").count()
