@@ -136,10 +136,14 @@ _WHERE = "/* where */"
 _STORED = "line, instrument_id, at_utc, lot_id, ct, target_g, measured_g, units_eff, temp_n, pressure_n, site_id, operator_id, oc"
 
 
+def _rule_conditions(rules) -> list[str]:
+    """SQL per rule: the row breaks it (never NULL)."""
+    return [f"coalesce(({cond}), false)" for _, _, cond, _ in rules]
+
+
 def _bad_condition(rules) -> str:
     """SQL: the row is malformed or breaks one of `rules`."""
-    conds = " OR ".join(f"coalesce(({cond}), false)" for _, _, cond, _ in rules) or "false"
-    return f"_malformed OR (NOT _malformed AND ({conds}))"
+    return f"_malformed OR (NOT _malformed AND ({' OR '.join(_rule_conditions(rules)) or 'false'}))"
 
 
 def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settings: Settings,
@@ -263,7 +267,7 @@ def _quarantine(con: duckdb.DuckDBPyConnection, file_id: int, rules, params: dic
     if source is None:
         con.execute("CREATE OR REPLACE TEMP TABLE _bad (line BIGINT)")
         return 0
-    conds = [f"coalesce(({cond}), false)" for _, _, cond, _ in rules]
+    conds = _rule_conditions(rules)
     _exec(con, f"CREATE OR REPLACE TEMP TABLE _flagged AS SELECT * FROM {source} WHERE {_bad_condition(rules)}", params)
     parts = [f"SELECT line, NULL AS field, _raw AS value, 'malformed_line' AS reason, "
              f"{staged.malformed_message} AS message FROM _flagged WHERE _malformed"]
