@@ -9,10 +9,10 @@ import pytest
 
 from pipeline.db import open_database
 from pipeline.settings import Settings
-from pipeline.sources import readers
+from pipeline.sources import ingest, readers
 from pipeline.sources.ingest import ingest_file, ingest_paths, iter_ingest
 from pipeline.sources.profiles import CANONICAL
-from ingest_fixture import HEADER, good_row, write_reference
+from ingest_fixture import HEADER, INSTRUMENTS, good_row, write_reference
 
 KEY = b"test-key"
 
@@ -99,13 +99,20 @@ def two_databases(tmp_path, monkeypatch):
         con.close()
 
 
-def test_fast_path_stores_and_quarantines_what_the_line_path_does(two_databases, monkeypatch):
+@pytest.mark.parametrize("parse_ahead", [True, False], ids=["parsed-ahead", "parsed-by-writer"])
+def test_fast_path_stores_and_quarantines_what_the_line_path_does(two_databases, parse_ahead):
     tmp, (fast, lines) = two_databases
     path = tmp / "checks.csv"
     bad = _fleet_file(path, 260_000)
-    prepared = readers.prepare_file(path, CANONICAL)
+    now = datetime.now(timezone.utc)
+    if parse_ahead:   # as iter_ingest's worker threads do it
+        prepared = ingest._read_ahead(path, CANONICAL, None, ingest._reference_snapshot(fast), Settings(), now)
+        assert prepared.parsed is not None and prepared.parsed.num_rows == 260_001
+    else:
+        prepared = readers.prepare_file(path, CANONICAL)
+        assert prepared.parsed is None
     assert prepared.records is not None and prepared.records.num_rows == 260_001
-    ingest_file(fast, path, Settings(), prepared=prepared)
+    ingest_file(fast, path, Settings(), now=now, prepared=prepared)
     ingest_file(lines, path, Settings(), prepared=readers.Prepared(path, prepared.scan, prepared.header, None))
     got_fast, got_lines = _contents(fast), _contents(lines)
     assert got_fast == got_lines
@@ -132,6 +139,29 @@ def test_check_ids_unique_and_increasing_in_ingest_order(two_databases):
                bool_and(check_id > prev) FROM (SELECT check_id, lag(check_id, 1, 0) OVER (ORDER BY file_id, line) AS prev
                                                FROM checks)""").fetchone()
     assert n == distinct == 1500 and ordered
+
+
+def test_files_parsed_ahead_see_reference_tables_ingested_before_them(tmp_path, monkeypatch):
+    """One run: an instruments file that moves U1's entry into service after the checks, then two
+    check files. The check files were read and parsed ahead while the old date held (when the
+    rows were fine); the writer must parse them again and quarantine them."""
+    monkeypatch.setenv("BREATHFLEET_OPERATOR_KEY", KEY.decode())
+    con = open_database(tmp_path / "db.duckdb")
+    ingest_paths(con, write_reference(tmp_path), Settings())
+    later = tmp_path / "update" / "instruments.csv"
+    later.parent.mkdir()
+    later.write_text(INSTRUMENTS.replace("U1,fuel_cell,Model A,S-1,North,2024-01-01",
+                                         "U1,fuel_cell,Model A,S-1,North,2026-06-01"), encoding="utf-8")
+    checks = []
+    for k in range(2):
+        p = tmp_path / f"c{k}.csv"
+        p.write_text(HEADER + "\n".join(good_row(i + 100 * k) for i in range(50)) + "\n", encoding="utf-8")
+        checks.append(p)
+    results = list(iter_ingest(con, [later] + checks, Settings()))
+    assert [(r.table, r.rows_stored, r.rows_quarantined) for r in results] == [
+        ("instruments", 1, 0), ("checks", 0, 50), ("checks", 0, 50)]
+    assert con.execute("SELECT DISTINCT reason FROM quarantine").fetchall() == [("before_in_service",)]
+    con.close()
 
 
 def test_padded_fields_are_trimmed_on_the_fast_path(two_databases):

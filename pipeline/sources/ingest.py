@@ -9,9 +9,11 @@ rows_read = rows_stored + rows_duplicate + rows_quarantined.
 
 from __future__ import annotations
 
+import threading
+from collections import deque
 from collections.abc import Callable, Iterable, Iterator
 from concurrent.futures import ThreadPoolExecutor
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, replace
 from datetime import datetime, timezone
 from pathlib import Path
 
@@ -147,20 +149,25 @@ def _bad_condition(rules) -> str:
 
 
 def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settings: Settings,
-                  now: datetime) -> tuple[dict, str | None]:
+                  now: datetime, parsed=None) -> tuple[dict, str | None]:
     """Create _p: the stored columns of every check and its _bad flag (one pass over _src).
 
-    Returns the rules' parameters and the SQL relation of the bad rows with every parsed column
-    (None when there are none), which the quarantine reads: it recomputes the parse for those
-    rows only, so _p stays narrow.
+    `parsed` is that same _p computed ahead by `_read_ahead` (a pyarrow.Table); _p is then a view
+    over it. Returns the rules' parameters and the SQL relation of the bad rows with every parsed
+    column (None when there are none), which the quarantine reads: it recomputes the parse for
+    those rows only, so _p stays narrow.
     """
     relation, params = _checks_relation(con, profile)
     params |= {"mmin": settings.ingest.measured_min, "mmax": settings.ingest.measured_max,
                "future": (now.replace(tzinfo=None) if now.tzinfo is None
                           else now.astimezone(timezone.utc).replace(tzinfo=None))
                + _hours(settings.ingest.future_tolerance_hours)}
-    _exec(con, f"CREATE OR REPLACE TEMP TABLE _p AS SELECT {_STORED}, {_bad_condition(_CHECK_RULES)} AS _bad "
-               f"FROM ({relation.replace(_WHERE, '')})", params)
+    if parsed is not None:
+        con.register("_parsed", parsed)
+        con.execute("CREATE OR REPLACE TEMP VIEW _p AS SELECT * FROM _parsed")
+    else:
+        _exec(con, f"CREATE OR REPLACE TEMP TABLE _p AS SELECT {_STORED}, {_bad_condition(_CHECK_RULES)} AS _bad "
+                   f"FROM ({relation.replace(_WHERE, '')})", params)
     if not con.execute("SELECT count(*) FROM _p WHERE _bad").fetchall()[0][0]:
         return params, None
     return params, "(" + relation.replace(_WHERE, "WHERE line IN (SELECT line FROM _p WHERE _bad)") + ")"
@@ -390,11 +397,11 @@ def _store_reference(con, table: str) -> tuple[int, int]:
 
 
 def _parse(con, profile: SourceProfile, table: str, settings: Settings,
-           now: datetime) -> tuple[list, dict, str | None]:
+           now: datetime, parsed=None) -> tuple[list, dict, str | None]:
     """Create _p (parsed records) from _src; return the quarantine rules, their parameters and the
     relation the quarantine reads the bad rows from."""
     if table == "checks":
-        params, bad_rows = _parse_checks(con, profile, settings, now)
+        params, bad_rows = _parse_checks(con, profile, settings, now, parsed)
         return _CHECK_RULES, params, bad_rows
     return _parse_reference(con, profile, table), {}, "_p"
 
@@ -406,7 +413,7 @@ def ingest_file(con: duckdb.DuckDBPyConnection, path: str | Path, settings: Sett
     """Ingest one file as one transaction and return its ledger row.
 
     `prepared` is the file read ahead by `prepare_file` (iter_ingest does that in a second
-    thread); without it the file is prepared here.
+    thread, and parses it when it can); without it the file is prepared here.
     """
     path = Path(path)
     profile = profile or CANONICAL
@@ -428,7 +435,8 @@ def ingest_file(con: duckdb.DuckDBPyConnection, path: str | Path, settings: Sett
         file_id = con.execute("SELECT coalesce(max(file_id), 0) + 1 FROM ingest_ledger").fetchall()[0][0]
         staged = stage_source(con, prepared, profile, table)
         read = con.execute("SELECT count(*) FROM _src").fetchone()[0]
-        rules, params, bad_rows = _parse(con, profile, table, settings, now)
+        parsed = prepared.parsed if table == "checks" else None
+        rules, params, bad_rows = _parse(con, profile, table, settings, now, parsed)
         quarantined = _quarantine(con, file_id, rules, params, staged, source=bad_rows,
                                   value_columns={"time_zone": "zone_raw"} if table == "checks" else None)
         if table == "checks":
@@ -443,16 +451,28 @@ def ingest_file(con: duckdb.DuckDBPyConnection, path: str | Path, settings: Sett
                      "profile": profile.name, "read": read, "stored": stored, "dup": duplicate,
                      "q": quarantined, "started": started, "finished": finished, "ver": __version__})
         unstage(con, staged)
-        for t in ("_p1", "_p", "_flagged", "_problems", "_bad", "_ops", "_ref", "_changed", "_raw_lines"):
+        _drop_parsed(con, parsed)
+        for t in ("_p1", "_flagged", "_problems", "_bad", "_ops", "_ref", "_changed", "_raw_lines"):
             con.execute(f"DROP TABLE IF EXISTS {t}")
         con.execute("COMMIT")
     except BaseException:
         con.execute("ROLLBACK")
         if staged is not None and staged.fast:
             con.unregister("_records")
+        if prepared.parsed is not None:
+            con.unregister("_parsed")
         raise
     return FileResult(file_id, str(path.resolve()), table, profile.name, read, stored, duplicate, quarantined,
                       started.isoformat(), finished.isoformat())
+
+
+def _drop_parsed(con: duckdb.DuckDBPyConnection, parsed) -> None:
+    """Drop _p: the view over a file parsed ahead, or the table parsed here."""
+    if parsed is not None:
+        con.execute("DROP VIEW IF EXISTS _p")
+        con.unregister("_parsed")
+    else:
+        con.execute("DROP TABLE IF EXISTS _p")
 
 
 def expand_paths(paths: Iterable[str | Path]) -> list[Path]:
@@ -468,13 +488,67 @@ def expand_paths(paths: Iterable[str | Path]) -> list[Path]:
     return out
 
 
-def _prepare_or_none(path: Path, profile: SourceProfile) -> Prepared | None:
-    """prepare_file for the read-ahead thread: None on any problem (ingest_file then prepares the
-    file itself and reports the problem in the usual way)."""
+# What the checks parse joins besides the file: the reference columns it reads.
+_REFERENCE_COLUMNS = {"instruments": "instrument_id, in_service_on", "sites": "site_id, time_zone",
+                      "lots": "lot_id"}
+# Files read (and parsed) ahead of the one being stored, each in its own worker thread.
+READ_AHEAD = 2
+
+
+def _reference_snapshot(con: duckdb.DuckDBPyConnection) -> dict:
+    """The reference columns the checks parse joins, as pyarrow tables (small: one row per unit, site, lot).
+
+    Read through a cursor (a connection of its own) between files, so it sees what is committed.
+    """
+    with con.cursor() as cur:
+        return {name: cur.sql(f"SELECT {cols} FROM {name}").to_arrow_table()   # noqa: S608 - fixed names
+                for name, cols in _REFERENCE_COLUMNS.items()}
+
+
+def _worker_connection() -> duckdb.DuckDBPyConnection:
+    """This worker thread's private in-memory DuckDB (opening one costs 10-20 ms, so it is kept)."""
+    mem = getattr(_WORKER, "con", None)
+    if mem is None:
+        mem = _WORKER.con = duckdb.connect()
+        # The records are the left side of every join of the parse and the reference tables the
+        # small right side; DuckDB would otherwise build its hash tables on the records when the
+        # small side is a Python (Arrow) scan, tripling the parse's time.
+        mem.execute("SET disabled_optimizers = 'build_side_probe_side'")
+    return mem
+
+
+_WORKER = threading.local()
+
+
+def _read_ahead(path: Path, profile: SourceProfile, table: str | None, reference: dict | None,
+                settings: Settings, now: datetime) -> Prepared | None:
+    """Prepare a file in a worker thread and, for a checks file on the fast path, parse it too.
+
+    The parse is `_parse_checks` itself, run in the thread's private in-memory DuckDB holding the
+    file's records and `reference` (a snapshot of the reference columns the parse joins), so the
+    writer connection only quarantines and stores. None on any problem: ingest_file then
+    prepares (and parses) the file itself and reports the problem in the usual way.
+    """
+    mem = _worker_connection()
     try:
-        return prepare_file(path, profile)
+        prepared = prepare_file(path, profile, mem)
     except Exception:   # noqa: BLE001 - reported by ingest_file when it prepares the file again
         return None
+    if (reference is None or prepared.records is None
+            or detect_table(path, prepared.header, profile, table) != "checks"):
+        return prepared
+    staged = None
+    try:
+        for name, rows in reference.items():
+            mem.register(name, rows)
+        staged = stage_source(mem, prepared, profile, "checks")
+        _parse_checks(mem, profile, settings, now)
+        return replace(prepared, parsed=mem.sql("SELECT * FROM _p").to_arrow_table())
+    except Exception:   # noqa: BLE001 - the writer parses the file itself
+        return prepared
+    finally:
+        unstage(mem, staged)
+        mem.execute("DROP TABLE IF EXISTS _p")
 
 
 def iter_ingest(con: duckdb.DuckDBPyConnection, files: list[Path], settings: Settings,
@@ -482,18 +556,33 @@ def iter_ingest(con: duckdb.DuckDBPyConnection, files: list[Path], settings: Set
                 key: bytes | None = None) -> Iterator[FileResult]:
     """Ingest files in order, each committed on its own, yielding each ledger row.
 
-    While one file is parsed and stored, a second thread reads the next one (`prepare_file`:
-    hash, line count, DuckDB's CSV reader into memory), so the two cores share the work the
-    way a single read_csv over many files shares it. A fatal error leaves earlier files committed.
+    While one file is quarantined and stored, worker threads read and parse the next ones
+    (`_read_ahead`: hash, line count, DuckDB's CSV reader, the checks parse), so both cores
+    work the way a single read_csv over many files uses them. The parse ahead joins a snapshot
+    of the reference tables; after a file that changes them, the snapshot is taken again and
+    files parsed with the old one are parsed again by the writer. A fatal error leaves earlier
+    files committed.
     """
     profile = profile or CANONICAL
     key = key if key is not None else operator_key(settings.ingest.operator_key_file)
-    with ThreadPoolExecutor(max_workers=1, thread_name_prefix="ingest-read-ahead") as pool:
-        ahead = pool.submit(_prepare_or_none, files[0], profile) if files else None
-        for i, path in enumerate(files):
-            prepared = ahead.result()
-            ahead = pool.submit(_prepare_or_none, files[i + 1], profile) if i + 1 < len(files) else None
-            yield ingest_file(con, path, settings, profile, table, key=key, prepared=prepared)
+    now = datetime.now(timezone.utc)
+    reference, version = _reference_snapshot(con), 0
+    with ThreadPoolExecutor(max_workers=READ_AHEAD, thread_name_prefix="ingest-read-ahead") as pool:
+        ahead: deque = deque()
+        submitted = 0
+        for path in files:
+            while submitted < len(files) and len(ahead) < READ_AHEAD:
+                ahead.append((version, pool.submit(_read_ahead, files[submitted], profile, table, reference,
+                                                   settings, now)))
+                submitted += 1
+            parsed_with, future = ahead.popleft()
+            prepared = future.result()
+            if prepared is not None and parsed_with != version:
+                prepared = replace(prepared, parsed=None)
+            result = ingest_file(con, path, settings, profile, table, now=now, key=key, prepared=prepared)
+            if result.table != "checks":
+                reference, version = _reference_snapshot(con), version + 1
+            yield result
 
 
 def ingest_paths(con: duckdb.DuckDBPyConnection, paths: Iterable[str | Path], settings: Settings,

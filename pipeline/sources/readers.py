@@ -63,12 +63,17 @@ class FileScan:
 
 
 def scan_file(path: Path, delimiter: str = ",") -> FileScan:
-    """Hash the file, count its line breaks and look for padded fields in one read (1 MiB blocks)."""
+    """Hash the file, count its line breaks and look for padded fields in one read (1 MiB blocks).
+
+    Padding is a space next to a field boundary: each block is translated so the delimiter, the
+    double quote and CR all read as LF, and then two searches (" \\n", "\\n ") find a space on either
+    side of any boundary (half the time of one search per boundary and side).
+    """
     digest = hashlib.sha256()
     newlines = crs = crlfs = 0
     padded = False
     d = delimiter.encode("utf-8") if len(delimiter.encode("utf-8")) == 1 else None
-    pads = [b"\t", b" \n", b"\n ", b" \r", b'" ', b' "'] + ([b" " + d, d + b" "] if d else [])
+    bounds = bytes.maketrans(d + b'"\r', b"\n\n\n") if d else None
     last = b""
     with open(path, "rb") as fh:
         for block in iter(lambda: fh.read(1 << 20), b""):
@@ -77,9 +82,12 @@ def scan_file(path: Path, delimiter: str = ",") -> FileScan:
             cr = block.count(b"\r")   # single-byte searches are fast; pairs only when needed
             crs += cr
             crlfs += (block.count(b"\r\n") if cr else 0) + (last == b"\r" and block[:1] == b"\n")
-            edge = last + block[:1]   # a pattern split across two blocks
-            padded = padded or d is None or b"\t" in block or (
-                (b" " in block or b" " in edge) and any(p in block or p == edge for p in pads))
+            if not padded:
+                if bounds is None or b"\t" in block:
+                    padded = True
+                elif b" " in block or last == b" ":
+                    edged = (last + block).translate(bounds)   # with the previous block's last byte
+                    padded = b" \n" in edged or b"\n " in edged
             last = block[-1:]
     lines = newlines + (1 if last not in (b"", b"\n") else 0)
     return FileScan(digest.hexdigest(), lines, crs == 0 or (crs == crlfs == newlines), padded or last == b" ")
@@ -142,13 +150,14 @@ class Prepared:
     scan: FileScan
     header: list[str]
     records: object | None    # pyarrow.Table (line, c1 ... cN), or None: stage line by line
+    parsed: object | None = None   # pyarrow.Table of the parsed checks (ingest's _p), parsed ahead
 
 
-def prepare_file(path: Path, profile: SourceProfile) -> Prepared:
+def prepare_file(path: Path, profile: SourceProfile, mem: duckdb.DuckDBPyConnection | None = None) -> Prepared:
     """Scan the file and, when it is a CSV file fit for the fast path, read its records.
 
-    Needs no database (a private in-memory DuckDB runs the CSV reader), so ingest can prepare the
-    next file in a second thread while the current one is parsed and stored. The records are
+    Needs no database: a private in-memory DuckDB runs the CSV reader (`mem`, else a new one), so
+    ingest can prepare the next files in worker threads while the current one is stored. The records are
     kept only when the parser read exactly one record per line after the header: it skips a
     line it rejects, and skipped lines, blank lines and quoted line breaks all leave fewer
     records than lines while nothing leaves more.
@@ -159,14 +168,17 @@ def prepare_file(path: Path, profile: SourceProfile) -> Prepared:
     if not (fmt == "csv" and profile.header and scan.clean_endings and scan.lines > 0):
         return Prepared(path, scan, header, None)
     columns = ", ".join(f"'c{i}': 'VARCHAR'" for i in range(1, len(header) + 1))
-    try:
-        with duckdb.connect() as mem:
-            records = mem.sql(
-                f"""SELECT ordinality + 1 AS line, *
+    query = f"""SELECT ordinality + 1 AS line, *
                 FROM read_csv($path, columns={{{columns}}}, header=true, auto_detect=false, delim=$delim, quote='"',
                               escape='"', encoding=$enc, strict_mode=true, null_padding=false, ignore_errors=true)
-                WITH ORDINALITY""",
-                params={"path": str(path), "delim": profile.delimiter, "enc": profile.encoding}).to_arrow_table()
+                WITH ORDINALITY"""
+    params = {"path": str(path), "delim": profile.delimiter, "enc": profile.encoding}
+    try:
+        if mem is not None:
+            records = mem.sql(query, params=params).to_arrow_table()
+        else:
+            with duckdb.connect() as own:
+                records = own.sql(query, params=params).to_arrow_table()
     except duckdb.Error:
         return Prepared(path, scan, header, None)
     return Prepared(path, scan, header, records if records.num_rows + 1 == scan.lines else None)
