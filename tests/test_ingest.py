@@ -229,8 +229,8 @@ import pipeline.sources.ingest as ing
 from pipeline.db import open_database
 from pipeline.settings import Settings
 orig = ing._store_checks
-def slow(con, file_id, key):
-    n = orig(con, file_id, key)
+def slow(con, file_id, key, *ahead):
+    n = orig(con, file_id, key, *ahead)
     if file_id > {first_id}:
         print("STORED", n, flush=True)
         time.sleep(60)

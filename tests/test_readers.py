@@ -106,8 +106,8 @@ def test_fast_path_stores_and_quarantines_what_the_line_path_does(two_databases,
     bad = _fleet_file(path, 260_000)
     now = datetime.now(timezone.utc)
     if parse_ahead:   # as iter_ingest's worker threads do it
-        prepared = ingest._read_ahead(path, CANONICAL, None, ingest._reference_snapshot(fast), Settings(), now)
-        assert prepared.parsed is not None and prepared.parsed.num_rows == 260_001
+        prepared = ingest._read_ahead(path, CANONICAL, None, ingest._reference_snapshot(fast), Settings(), now, KEY)
+        assert prepared.parsed is not None and prepared.parsed.rows.num_rows == 260_001
     else:
         prepared = readers.prepare_file(path, CANONICAL)
         assert prepared.parsed is None

@@ -48,6 +48,16 @@ class FileResult:
         return asdict(self)
 
 
+@dataclass(frozen=True)
+class ParsedAhead:
+    """A checks file parsed by a worker thread (`_read_ahead`): _p and what storing it needs."""
+
+    rows: object                  # pyarrow.Table: _p (the stored columns and the _bad flag)
+    bad: int                      # rows flagged bad
+    span: tuple                   # of the good rows: (first at_utc, last at_utc, count, distinct duplicate keys)
+    operators: tuple[list, list]  # distinct operator codes of the file and their keyed hashes
+
+
 def detect_table(path: Path, columns: list[str], profile: SourceProfile, table: str | None) -> str:
     """--table, else the profile's table, else the file name (sites.csv), else the header."""
     if table:
@@ -152,8 +162,8 @@ def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settin
                   now: datetime, parsed=None) -> tuple[dict, str | None]:
     """Create _p: the stored columns of every check and its _bad flag (one pass over _src).
 
-    `parsed` is that same _p computed ahead by `_read_ahead` (a pyarrow.Table); _p is then a view
-    over it. Returns the rules' parameters and the SQL relation of the bad rows with every parsed
+    `parsed` is that same _p computed ahead by `_read_ahead` (a ParsedAhead); _p is then a view
+    over its rows. Returns the rules' parameters and the SQL relation of the bad rows with every parsed
     column (None when there are none), which the quarantine reads: it recomputes the parse for
     those rows only, so _p stays narrow.
     """
@@ -163,12 +173,14 @@ def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settin
                           else now.astimezone(timezone.utc).replace(tzinfo=None))
                + _hours(settings.ingest.future_tolerance_hours)}
     if parsed is not None:
-        con.register("_parsed", parsed)
+        con.register("_parsed", parsed.rows)
         con.execute("CREATE OR REPLACE TEMP VIEW _p AS SELECT * FROM _parsed")
+        bad = parsed.bad
     else:
         _exec(con, f"CREATE OR REPLACE TEMP TABLE _p AS SELECT {_STORED}, {_bad_condition(_CHECK_RULES)} AS _bad "
                    f"FROM ({relation.replace(_WHERE, '')})", params)
-    if not con.execute("SELECT count(*) FROM _p WHERE _bad").fetchall()[0][0]:
+        bad = con.execute("SELECT count(*) FROM _p WHERE _bad").fetchall()[0][0]
+    if not bad:
         return params, None
     return params, "(" + relation.replace(_WHERE, "WHERE line IN (SELECT line FROM _p WHERE _bad)") + ")"
 
@@ -293,23 +305,25 @@ def _quarantine(con: duckdb.DuckDBPyConnection, file_id: int, rules, params: dic
     return bad
 
 
-def _store_checks(con, file_id: int, key: bytes) -> int:
+def _store_checks(con, file_id: int, key: bytes, ahead: ParsedAhead | None = None) -> int:
     """Insert the good rows of _p that are not exact duplicates; return how many were stored.
 
     check_id = the highest stored id + the row's line: unique, increasing in ingest order (with
     gaps where rows were quarantined or skipped), and no sort is needed. The in-file duplicate
-    window runs only when the file holds duplicates (a cheaper DISTINCT count finds out).
+    window runs only when the file holds duplicates (a cheaper DISTINCT count finds out). A file
+    parsed ahead with no bad row brings that count and its operators' hashes along.
     """
-    ops = [r[0] for r in con.execute("SELECT DISTINCT operator_id FROM _p WHERE operator_id IS NOT NULL").fetchall()]
+    if ahead is not None and ahead.bad == 0:
+        (lo, hi, rows, distinct), (codes, hashed) = ahead.span, ahead.operators
+    else:
+        lo, hi, rows, distinct = con.execute(f"SELECT {_SPAN} FROM _p ANTI JOIN _bad USING (line)").fetchone()
+        codes, hashed = _operators(con, key)
     con.execute("CREATE OR REPLACE TEMP TABLE _ops AS SELECT unnest($c) AS code, unnest($h) AS hashed",
-                {"c": ops, "h": [pseudonymise(o, key) for o in ops]})
-    lo, hi, rows, distinct = con.execute(
-        "SELECT min(at_utc), max(at_utc), count(*), count(DISTINCT (instrument_id, at_utc, lot_id, ct, measured_g)) "
-        "FROM _p ANTI JOIN _bad USING (line)").fetchone()
+                {"c": codes, "h": hashed})
     firsts = ("" if rows == distinct else
               "QUALIFY row_number() OVER (PARTITION BY instrument_id, at_utc, lot_id, ct, measured_g ORDER BY line) = 1")
-    before, base = con.execute("SELECT count(*), coalesce(max(check_id), 0) FROM checks").fetchone()
-    con.execute(f"""
+    base = con.execute("SELECT coalesce(max(check_id), 0) FROM checks").fetchone()[0]
+    return con.execute(f"""
         INSERT INTO checks (check_id, instrument_id, measured_at, lot_id, check_type, target, measured, units,
                             simulator_temp_c, pressure_kpa, site_id, operator_id, outcome, file_id, line)
         WITH firsts AS (
@@ -324,8 +338,17 @@ def _store_checks(con, file_id: int, key: bytes) -> int:
           ON e.instrument_id = f.instrument_id AND e.measured_at = f.at_utc AND e.lot_id = f.lot_id
          AND e.check_type = f.ct AND e.measured = f.measured_g
         LEFT JOIN _ops o ON o.code = f.operator_id
-    """, {"lo": lo, "hi": hi, "fid": file_id, "base": base})
-    return con.execute("SELECT count(*) FROM checks").fetchone()[0] - before
+    """, {"lo": lo, "hi": hi, "fid": file_id, "base": base}).fetchone()[0]
+
+
+# Of the good rows of _p: first and last time, count, and count of distinct duplicate keys.
+_SPAN = "min(at_utc), max(at_utc), count(*), count(DISTINCT (instrument_id, at_utc, lot_id, ct, measured_g))"
+
+
+def _operators(con, key: bytes) -> tuple[list, list]:
+    """The distinct operator codes of _p and their keyed hashes."""
+    codes = [r[0] for r in con.execute("SELECT DISTINCT operator_id FROM _p WHERE operator_id IS NOT NULL").fetchall()]
+    return codes, [pseudonymise(c, key) for c in codes]
 
 
 # Reference tables: (column, SQL type); key columns; required columns.
@@ -440,7 +463,7 @@ def ingest_file(con: duckdb.DuckDBPyConnection, path: str | Path, settings: Sett
         quarantined = _quarantine(con, file_id, rules, params, staged, source=bad_rows,
                                   value_columns={"time_zone": "zone_raw"} if table == "checks" else None)
         if table == "checks":
-            stored = _store_checks(con, file_id, key)
+            stored = _store_checks(con, file_id, key, parsed)
             duplicate = read - quarantined - stored
         else:
             stored, duplicate = _store_reference(con, table)
@@ -459,7 +482,7 @@ def ingest_file(con: duckdb.DuckDBPyConnection, path: str | Path, settings: Sett
         con.execute("ROLLBACK")
         if staged is not None and staged.fast:
             con.unregister("_records")
-        if prepared.parsed is not None:
+        if prepared.parsed is not None and table == "checks":
             con.unregister("_parsed")
         raise
     return FileResult(file_id, str(path.resolve()), table, profile.name, read, stored, duplicate, quarantined,
@@ -521,12 +544,12 @@ _WORKER = threading.local()
 
 
 def _read_ahead(path: Path, profile: SourceProfile, table: str | None, reference: dict | None,
-                settings: Settings, now: datetime) -> Prepared | None:
+                settings: Settings, now: datetime, key: bytes) -> Prepared | None:
     """Prepare a file in a worker thread and, for a checks file on the fast path, parse it too.
 
     The parse is `_parse_checks` itself, run in the thread's private in-memory DuckDB holding the
-    file's records and `reference` (a snapshot of the reference columns the parse joins), so the
-    writer connection only quarantines and stores. None on any problem: ingest_file then
+    file's records and `reference` (a snapshot of the reference columns the parse joins), with the
+    facts `_store_checks` needs (a ParsedAhead), so the writer connection only quarantines and stores. None on any problem: ingest_file then
     prepares (and parses) the file itself and reports the problem in the usual way.
     """
     mem = _worker_connection()
@@ -543,7 +566,10 @@ def _read_ahead(path: Path, profile: SourceProfile, table: str | None, reference
             mem.register(name, rows)
         staged = stage_source(mem, prepared, profile, "checks")
         _parse_checks(mem, profile, settings, now)
-        return replace(prepared, parsed=mem.sql("SELECT * FROM _p").to_arrow_table())
+        rows = mem.sql("SELECT * FROM _p").to_arrow_table()
+        bad = mem.execute("SELECT count(*) FROM _p WHERE _bad").fetchall()[0][0]
+        span = mem.execute(f"SELECT {_SPAN} FROM _p WHERE NOT _bad").fetchall()[0]
+        return replace(prepared, parsed=ParsedAhead(rows, bad, span, _operators(mem, key)))
     except Exception:   # noqa: BLE001 - the writer parses the file itself
         return prepared
     finally:
@@ -573,7 +599,7 @@ def iter_ingest(con: duckdb.DuckDBPyConnection, files: list[Path], settings: Set
         for path in files:
             while submitted < len(files) and len(ahead) < READ_AHEAD:
                 ahead.append((version, pool.submit(_read_ahead, files[submitted], profile, table, reference,
-                                                   settings, now)))
+                                                   settings, now, key)))
                 submitted += 1
             parsed_with, future = ahead.popleft()
             prepared = future.result()

@@ -150,7 +150,7 @@ class Prepared:
     scan: FileScan
     header: list[str]
     records: object | None    # pyarrow.Table (line, c1 ... cN), or None: stage line by line
-    parsed: object | None = None   # pyarrow.Table of the parsed checks (ingest's _p), parsed ahead
+    parsed: object | None = None   # a checks file parsed ahead (ingest.ParsedAhead)
 
 
 def prepare_file(path: Path, profile: SourceProfile, mem: duckdb.DuckDBPyConnection | None = None) -> Prepared:
