@@ -37,6 +37,11 @@ from pipeline.settings import Settings, load_settings
 DB_ENV = "BREATHFLEET_DB"
 SETTINGS_ENV = "BREATHFLEET_SETTINGS"
 MAX_POINTS = 3000  # the most rows any chart ships to the browser
+QUERY_TTL_S = 3600  # a cached query result is dropped after this many seconds
+# Defaults of page controls, shared with dashboard.warm (which runs these views' queries at start).
+FLEET_SIGNAL_DAYS = 7  # fleet overview: signals of the last days of data
+FUNNEL_DEFAULT_DAYS = 90  # comparison: the funnel's window
+FUNNEL_DEFAULT_OVERDISPERSED = True  # comparison: limits allow for unit-to-unit spread
 SOFTWARE_VERSION = __version__
 _REQUIRES = re.compile(r"^--\s*requires:\s*(.+)$", re.MULTILINE)
 
@@ -135,7 +140,7 @@ def required_tables(name: str) -> tuple[str, ...]:
     return tuple(t.strip() for t in match.group(1).split(",")) if match else ()
 
 
-@st.cache_data(max_entries=512, show_spinner=False, ttl=3600)
+@st.cache_data(max_entries=512, show_spinner=False, ttl=QUERY_TTL_S)
 def _query(token: DataToken, name: str, params: tuple[tuple[str, Any], ...]) -> pd.DataFrame | None:
     if not set(required_tables(name)) <= _tables(token):
         return None

@@ -19,8 +19,8 @@ if frame.missing(levels):
 
 c1, c2, c3 = st.columns([2, 2, 1])
 level = c1.selectbox("Level (g/210L)", levels["level"].tolist(), format_func=lambda v: f"{v:.3f}", key="cmp_level")
-days = c2.select_slider("Window (days of data)", list(FUNNEL_WINDOW_DAYS), value=90, key="cmp_days")
-overdispersed = c3.toggle("Allow for unit-to-unit spread", value=True, key="cmp_overdispersed",
+days = c2.select_slider("Window (days of data)", list(FUNNEL_WINDOW_DAYS), value=loaders.FUNNEL_DEFAULT_DAYS, key="cmp_days")
+overdispersed = c3.toggle("Allow for unit-to-unit spread", value=loaders.FUNNEL_DEFAULT_OVERDISPERSED, key="cmp_overdispersed",
                           help="Adds the between-unit variance beyond chance (tau²) to the limits, "
                                "as Spiegelhalter (2005) section 6.2 advises when most units fall outside.")
 units = loaders.load("dashboard_funnel_units", level=level, days=days, max_points=loaders.MAX_POINTS,

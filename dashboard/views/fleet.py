@@ -7,7 +7,8 @@ from dashboard import figures, frame, loaders
 
 rng = frame.header("Fleet overview", "What needs attention this week, and where?")
 frame.summary_note(rng)
-states = loaders.unit_states(signal_days=7)
+DAYS = loaders.FLEET_SIGNAL_DAYS
+states = loaders.unit_states(signal_days=DAYS)
 if frame.missing(states):
     frame.not_computed("Unit states", "Ingest instruments and checks (`breathfleet ingest`), then analyse them "
                        "(`breathfleet run`), which writes the fleet summary.")
@@ -17,7 +18,7 @@ counts = states["state"].value_counts()
 cols = st.columns(4)
 cols[0].metric("Units", f"{len(states):,}")
 cols[1].metric("In control", f"{int(counts.get('in control', 0)):,}")
-cols[2].metric("Signal in the last 7 days", f"{int(counts.get('signal', 0)):,}")
+cols[2].metric(f"Signal in the last {DAYS} days", f"{int(counts.get('signal', 0)):,}")
 cols[3].metric("Out of tolerance (latest check)", f"{int(counts.get('out of tolerance', 0)):,}")
 if counts.get("not charted", 0):
     st.caption(f"{int(counts['not charted']):,} units are not charted yet: control charts have not been computed.")
@@ -40,12 +41,12 @@ counts = loaders.state_counts(shown, by).pivot_table(index=by, columns="state", 
                                                      fill_value=0).reset_index()
 frame.table_alternative(counts, f"Units by {'region' if len(by) == 1 else 'site'} and state (table)")
 
-st.subheader("Signals in the last 7 days of data")
-signals = loaders.load("dashboard_signals_recent", days=7)
+st.subheader(f"Signals in the last {DAYS} days of data")
+signals = loaders.load("dashboard_signals_recent", days=DAYS)
 if signals is None:
     frame.not_computed("Control-chart signals", "Run the chart analysis (`breathfleet analyse`).")
 elif signals.empty:
-    st.write("No control-chart signals in the last 7 days of data.")
+    st.write(f"No control-chart signals in the last {DAYS} days of data.")
 else:
     if region != "All regions":
         signals = signals[signals["region"] == region]

@@ -9,6 +9,7 @@ rows_read = rows_stored + rows_duplicate + rows_quarantined.
 
 from __future__ import annotations
 
+import functools
 import threading
 from collections import deque
 from collections.abc import Callable, Iterable, Iterator
@@ -159,15 +160,15 @@ def _bad_condition(rules) -> str:
 
 
 def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settings: Settings,
-                  now: datetime, parsed=None) -> tuple[dict, str | None]:
+                  now: datetime, parsed=None, mapped: bool = False) -> tuple[dict, str | None]:
     """Create _p: the stored columns of every check and its _bad flag (one pass over _src).
 
     `parsed` is that same _p computed ahead by `_read_ahead` (a ParsedAhead); _p is then a view
     over its rows. Returns the rules' parameters and the SQL relation of the bad rows with every parsed
     column (None when there are none), which the quarantine reads: it recomputes the parse for
-    those rows only, so _p stays narrow.
+    those rows only, so _p stays narrow. `mapped`: con holds the profile's mapping tables already.
     """
-    relation, params = _checks_relation(con, profile)
+    relation, params = _checks_relation(profile)
     params |= {"mmin": settings.ingest.measured_min, "mmax": settings.ingest.measured_max,
                "future": (now.replace(tzinfo=None) if now.tzinfo is None
                           else now.astimezone(timezone.utc).replace(tzinfo=None))
@@ -177,17 +178,24 @@ def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settin
         con.execute("CREATE OR REPLACE TEMP VIEW _p AS SELECT * FROM _parsed")
         bad = parsed.bad
     else:
+        if not mapped:
+            _mapping_tables(con, profile)
+            mapped = True
         _exec(con, f"CREATE OR REPLACE TEMP TABLE _p AS SELECT {_STORED}, {_bad_condition(_CHECK_RULES)} AS _bad "
                    f"FROM ({relation.replace(_WHERE, '')})", params)
         bad = con.execute("SELECT count(*) FROM _p WHERE _bad").fetchall()[0][0]
     if not bad:
         return params, None
+    if not mapped:   # the quarantine parses the bad rows again
+        _mapping_tables(con, profile)
     return params, "(" + relation.replace(_WHERE, "WHERE line IN (SELECT line FROM _p WHERE _bad)") + ")"
 
 
-def _checks_relation(con: duckdb.DuckDBPyConnection, profile: SourceProfile) -> tuple[str, dict]:
-    """SQL of every parsed column of the checks in _src (filtered at _WHERE), and its parameters."""
-    _mapping_tables(con, profile)
+def _checks_relation(profile: SourceProfile) -> tuple[str, dict]:
+    """SQL of every parsed column of the checks in _src (filtered at _WHERE), and its parameters.
+
+    It joins the mapping tables (`_mapping_tables`) and the reference tables.
+    """
     d = profile.decimal
     if profile.time_zone_column:
         zone_expr = "s._tz"
@@ -316,8 +324,9 @@ def _store_checks(con, file_id: int, key: bytes, ahead: ParsedAhead | None = Non
     if ahead is not None and ahead.bad == 0:
         (lo, hi, rows, distinct), (codes, hashed) = ahead.span, ahead.operators
     else:
-        lo, hi, rows, distinct = con.execute(f"SELECT {_SPAN} FROM _p ANTI JOIN _bad USING (line)").fetchone()
-        codes, hashed = _operators(con, key)
+        lo, hi, rows, distinct = con.execute(f"SELECT {_span('true')} FROM _p ANTI JOIN _bad USING (line)").fetchone()
+        codes = [r[0] for r in con.execute("SELECT DISTINCT operator_id FROM _p WHERE operator_id IS NOT NULL").fetchall()]
+        hashed = _hashed_operators(codes, key)
     con.execute("CREATE OR REPLACE TEMP TABLE _ops AS SELECT unnest($c) AS code, unnest($h) AS hashed",
                 {"c": codes, "h": hashed})
     firsts = ("" if rows == distinct else
@@ -341,14 +350,23 @@ def _store_checks(con, file_id: int, key: bytes, ahead: ParsedAhead | None = Non
     """, {"lo": lo, "hi": hi, "fid": file_id, "base": base}).fetchone()[0]
 
 
-# Of the good rows of _p: first and last time, count, and count of distinct duplicate keys.
-_SPAN = "min(at_utc), max(at_utc), count(*), count(DISTINCT (instrument_id, at_utc, lot_id, ct, measured_g))"
+def _span(good: str) -> str:
+    """SQL aggregates over the rows of _p where `good` holds: first and last time, count, and count of
+    distinct duplicate keys. The keys are counted by hash: a collision can only lower the count,
+    which runs the exact duplicate window, so it costs time, never a wrong result."""
+    f = f" FILTER (WHERE {good})"
+    return (f"min(at_utc){f}, max(at_utc){f}, count(*){f}, "
+            f"count(DISTINCT hash(instrument_id, at_utc, lot_id, ct, measured_g)){f}")
 
 
-def _operators(con, key: bytes) -> tuple[list, list]:
-    """The distinct operator codes of _p and their keyed hashes."""
-    codes = [r[0] for r in con.execute("SELECT DISTINCT operator_id FROM _p WHERE operator_id IS NOT NULL").fetchall()]
-    return codes, [pseudonymise(c, key) for c in codes]
+def _hashed_operators(codes: list, key: bytes) -> list:
+    return [_pseudonymise_cached(c, key) for c in codes]
+
+
+@functools.lru_cache(maxsize=1 << 16)
+def _pseudonymise_cached(code: str, key: bytes) -> str:
+    """pseudonymise, remembered: the same operators recur in file after file."""
+    return pseudonymise(code, key)
 
 
 # Reference tables: (column, SQL type); key columns; required columns.
@@ -457,7 +475,7 @@ def ingest_file(con: duckdb.DuckDBPyConnection, path: str | Path, settings: Sett
     try:
         file_id = con.execute("SELECT coalesce(max(file_id), 0) + 1 FROM ingest_ledger").fetchall()[0][0]
         staged = stage_source(con, prepared, profile, table)
-        read = con.execute("SELECT count(*) FROM _src").fetchone()[0]
+        read = con.execute("SELECT count(*) FROM _src").fetchall()[0][0]
         parsed = prepared.parsed if table == "checks" else None
         rules, params, bad_rows = _parse(con, profile, table, settings, now, parsed)
         quarantined = _quarantine(con, file_id, rules, params, staged, source=bad_rows,
@@ -565,11 +583,15 @@ def _read_ahead(path: Path, profile: SourceProfile, table: str | None, reference
         for name, rows in reference.items():
             mem.register(name, rows)
         staged = stage_source(mem, prepared, profile, "checks")
-        _parse_checks(mem, profile, settings, now)
+        if getattr(_WORKER, "mapped", None) is not profile:
+            _mapping_tables(mem, profile)
+            _WORKER.mapped = profile
+        _parse_checks(mem, profile, settings, now, mapped=True)
         rows = mem.sql("SELECT * FROM _p").to_arrow_table()
-        bad = mem.execute("SELECT count(*) FROM _p WHERE _bad").fetchall()[0][0]
-        span = mem.execute(f"SELECT {_SPAN} FROM _p WHERE NOT _bad").fetchall()[0]
-        return replace(prepared, parsed=ParsedAhead(rows, bad, span, _operators(mem, key)))
+        bad, *span, codes = mem.execute(
+            f"SELECT count(*) FILTER (WHERE _bad), {_span('NOT _bad')}, "
+            "list(DISTINCT operator_id) FILTER (WHERE operator_id IS NOT NULL) FROM _p").fetchall()[0]
+        return replace(prepared, parsed=ParsedAhead(rows, bad, tuple(span), (codes, _hashed_operators(codes, key))))
     except Exception:   # noqa: BLE001 - the writer parses the file itself
         return prepared
     finally:
