@@ -125,6 +125,19 @@ def test_fast_path_stores_and_quarantines_what_the_line_path_does(two_databases,
     assert all(c[-1] not in bad for c in checks)
 
 
+def test_a_clean_file_parsed_ahead_is_stored_without_reading_its_records(two_databases):
+    tmp, (con, lines) = two_databases
+    path = tmp / "clean.csv"
+    path.write_text(HEADER + "\n".join(good_row(i) for i in range(300)) + "\n", encoding="utf-8")
+    now = datetime.now(timezone.utc)
+    prepared = ingest._read_ahead(path, CANONICAL, None, ingest._reference_snapshot(con), Settings(), now, KEY)
+    assert prepared.records is None and prepared.parsed.bad == 0 and prepared.parsed.rows.num_rows == 300
+    result = ingest_file(con, path, Settings(), now=now, prepared=prepared)
+    ingest_file(lines, path, Settings(), now=now, prepared=readers.Prepared(path, prepared.scan, prepared.header, None))
+    assert (result.rows_read, result.rows_stored, result.rows_quarantined) == (300, 300, 0)
+    assert _contents(con) == _contents(lines)
+
+
 def test_check_ids_unique_and_increasing_in_ingest_order(two_databases):
     tmp, (con, _) = two_databases
     files = []

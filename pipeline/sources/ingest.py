@@ -10,6 +10,7 @@ rows_read = rows_stored + rows_duplicate + rows_quarantined.
 from __future__ import annotations
 
 import functools
+import re
 import threading
 from collections import deque
 from collections.abc import Callable, Iterable, Iterator
@@ -26,7 +27,8 @@ from pipeline.settings import Settings
 from pipeline.sources.profiles import (CANONICAL, CANONICAL_COLUMNS, CHECK_TYPES, OUTCOMES, TABLES,
                                        SourceProfile)
 from pipeline.sources.pseudonymise import operator_key, pseudonymise
-from pipeline.sources.readers import Prepared, Staged, prepare_file, raw_lines, stage_source, unstage
+from pipeline.sources.readers import (Prepared, Staged, csv_records, fast_path_fits, file_format, prepare_file,
+                                      raw_lines, read_header, scan_file, stage_records, stage_source, unstage)
 from pipeline.units import _SPELLINGS, TO_STORAGE
 
 
@@ -75,11 +77,15 @@ def detect_table(path: Path, columns: list[str], profile: SourceProfile, table: 
     return "checks"
 
 
-def _exec(con: duckdb.DuckDBPyConnection, sql: str, params: dict | None = None):
-    """Execute with only the $parameters the statement names (DuckDB rejects extra ones)."""
-    import re
+def _used(sql: str, params: dict | None) -> dict | None:
+    """Only the $parameters the statement names (DuckDB rejects extra ones)."""
     used = set(re.findall(r"\$([a-z_]+)", sql))
-    return con.execute(sql, {k: v for k, v in (params or {}).items() if k in used} or None)
+    return {k: v for k, v in (params or {}).items() if k in used} or None
+
+
+def _exec(con: duckdb.DuckDBPyConnection, sql: str, params: dict | None = None):
+    """Execute with only the $parameters the statement names."""
+    return con.execute(sql, _used(sql, params))
 
 
 def _num(col: str, decimal: str) -> str:
@@ -169,10 +175,7 @@ def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settin
     those rows only, so _p stays narrow. `mapped`: con holds the profile's mapping tables already.
     """
     relation, params = _checks_relation(profile)
-    params |= {"mmin": settings.ingest.measured_min, "mmax": settings.ingest.measured_max,
-               "future": (now.replace(tzinfo=None) if now.tzinfo is None
-                          else now.astimezone(timezone.utc).replace(tzinfo=None))
-               + _hours(settings.ingest.future_tolerance_hours)}
+    params |= _rule_parameters(settings, now)
     if parsed is not None:
         con.register("_parsed", parsed.rows)
         con.execute("CREATE OR REPLACE TEMP VIEW _p AS SELECT * FROM _parsed")
@@ -181,14 +184,26 @@ def _parse_checks(con: duckdb.DuckDBPyConnection, profile: SourceProfile, settin
         if not mapped:
             _mapping_tables(con, profile)
             mapped = True
-        _exec(con, f"CREATE OR REPLACE TEMP TABLE _p AS SELECT {_STORED}, {_bad_condition(_CHECK_RULES)} AS _bad "
-                   f"FROM ({relation.replace(_WHERE, '')})", params)
+        _exec(con, f"CREATE OR REPLACE TEMP TABLE _p AS {_parsed_select(relation)}", params)
         bad = con.execute("SELECT count(*) FROM _p WHERE _bad").fetchall()[0][0]
     if not bad:
         return params, None
     if not mapped:   # the quarantine parses the bad rows again
         _mapping_tables(con, profile)
     return params, "(" + relation.replace(_WHERE, "WHERE line IN (SELECT line FROM _p WHERE _bad)") + ")"
+
+
+def _rule_parameters(settings: Settings, now: datetime) -> dict:
+    """The $parameters of the checks rules: physical range and the latest acceptable time."""
+    return {"mmin": settings.ingest.measured_min, "mmax": settings.ingest.measured_max,
+            "future": (now.replace(tzinfo=None) if now.tzinfo is None
+                       else now.astimezone(timezone.utc).replace(tzinfo=None))
+            + _hours(settings.ingest.future_tolerance_hours)}
+
+
+def _parsed_select(relation: str) -> str:
+    """SQL of _p from the relation of `_checks_relation`: the stored columns and the _bad flag."""
+    return f"SELECT {_STORED}, {_bad_condition(_CHECK_RULES)} AS _bad FROM ({relation.replace(_WHERE, '')})"
 
 
 def _checks_relation(profile: SourceProfile) -> tuple[str, dict]:
@@ -474,9 +489,12 @@ def ingest_file(con: duckdb.DuckDBPyConnection, path: str | Path, settings: Sett
     con.execute("BEGIN TRANSACTION")
     try:
         file_id = con.execute("SELECT coalesce(max(file_id), 0) + 1 FROM ingest_ledger").fetchall()[0][0]
-        staged = stage_source(con, prepared, profile, table)
-        read = con.execute("SELECT count(*) FROM _src").fetchall()[0][0]
         parsed = prepared.parsed if table == "checks" else None
+        if parsed is not None and prepared.records is None:   # parsed ahead, no bad row: nothing to stage
+            read = parsed.rows.num_rows
+        else:
+            staged = stage_source(con, prepared, profile, table)
+            read = con.execute("SELECT count(*) FROM _src").fetchall()[0][0]
         rules, params, bad_rows = _parse(con, profile, table, settings, now, parsed)
         quarantined = _quarantine(con, file_id, rules, params, staged, source=bad_rows,
                                   value_columns={"time_zone": "zone_raw"} if table == "checks" else None)
@@ -563,40 +581,48 @@ _WORKER = threading.local()
 
 def _read_ahead(path: Path, profile: SourceProfile, table: str | None, reference: dict | None,
                 settings: Settings, now: datetime, key: bytes) -> Prepared | None:
-    """Prepare a file in a worker thread and, for a checks file on the fast path, parse it too.
+    """Prepare a file in a worker thread and, for a checks file fit for the fast path, parse it too.
 
-    The parse is `_parse_checks` itself, run in the thread's private in-memory DuckDB holding the
-    file's records and `reference` (a snapshot of the reference columns the parse joins), with the
-    facts `_store_checks` needs (a ParsedAhead), so the writer connection only quarantines and stores. None on any problem: ingest_file then
-    prepares (and parses) the file itself and reports the problem in the usual way.
+    The parse is `_parse_checks`'s own SQL, run in the thread's private in-memory DuckDB straight
+    from DuckDB's CSV parser into Arrow (no intermediate copy of the text fields), joining
+    `reference` (a snapshot of the reference columns the parse joins), with the facts
+    `_store_checks` needs (a ParsedAhead), so the writer connection only quarantines and stores.
+    The records themselves are read only when some row is bad (the quarantine reads them). None
+    on any problem: ingest_file then prepares (and parses) the file itself and reports the
+    problem in the usual way.
     """
     mem = _worker_connection()
     try:
-        prepared = prepare_file(path, profile, mem)
-    except Exception:   # noqa: BLE001 - reported by ingest_file when it prepares the file again
-        return None
-    if (reference is None or prepared.records is None
-            or detect_table(path, prepared.header, profile, table) != "checks"):
-        return prepared
-    staged = None
-    try:
+        scan = scan_file(path, profile.delimiter)
+        header = read_header(path, profile) if file_format(path, profile) == "csv" else []
+        if (reference is None or not fast_path_fits(path, profile, scan)
+                or detect_table(path, header, profile, table) != "checks"):
+            return prepare_file(path, profile, mem, scan)
         for name, rows in reference.items():
             mem.register(name, rows)
-        staged = stage_source(mem, prepared, profile, "checks")
+        stage_records(mem, csv_records(path, header, profile), header, scan.padded, profile, "checks")
         if getattr(_WORKER, "mapped", None) is not profile:
             _mapping_tables(mem, profile)
             _WORKER.mapped = profile
-        _parse_checks(mem, profile, settings, now, mapped=True)
-        rows = mem.sql("SELECT * FROM _p").to_arrow_table()
+        relation, params = _checks_relation(profile)
+        sql = _parsed_select(relation)
+        rows = mem.sql(sql, params=_used(sql, params | _rule_parameters(settings, now))).to_arrow_table()
+        if rows.num_rows + 1 != scan.lines:   # the parser skipped or joined lines: the writer stages line by line
+            return Prepared(path, scan, header, None)
+        mem.register("_p", rows)
         bad, *span, codes = mem.execute(
             f"SELECT count(*) FILTER (WHERE _bad), {_span('NOT _bad')}, "
             "list(DISTINCT operator_id) FILTER (WHERE operator_id IS NOT NULL) FROM _p").fetchall()[0]
-        return replace(prepared, parsed=ParsedAhead(rows, bad, tuple(span), (codes, _hashed_operators(codes, key))))
-    except Exception:   # noqa: BLE001 - the writer parses the file itself
-        return prepared
+        records = prepare_file(path, profile, mem, scan).records if bad else None
+        if bad and records is None:
+            return Prepared(path, scan, header, None)
+        return Prepared(path, scan, header, records,
+                        ParsedAhead(rows, bad, tuple(span), (codes, _hashed_operators(codes, key))))
+    except Exception:   # noqa: BLE001 - ingest_file prepares the file itself and reports any problem
+        return None
     finally:
-        unstage(mem, staged)
-        mem.execute("DROP TABLE IF EXISTS _p")
+        mem.execute("DROP VIEW IF EXISTS _src")
+        mem.unregister("_p")
 
 
 def iter_ingest(con: duckdb.DuckDBPyConnection, files: list[Path], settings: Settings,

@@ -153,8 +153,33 @@ class Prepared:
     parsed: object | None = None   # a checks file parsed ahead (ingest.ParsedAhead)
 
 
-def prepare_file(path: Path, profile: SourceProfile, mem: duckdb.DuckDBPyConnection | None = None) -> Prepared:
-    """Scan the file and, when it is a CSV file fit for the fast path, read its records.
+def fast_path_fits(path: Path, profile: SourceProfile, scan: FileScan) -> bool:
+    """A CSV file with a header and clean line endings: DuckDB's CSV parser may read its records."""
+    return file_format(path, profile) == "csv" and profile.header and scan.clean_endings and scan.lines > 0
+
+
+def csv_records(path: Path, header: list[str], profile: SourceProfile) -> str:
+    """SQL relation (line, c1 ... cN) of the file's records by DuckDB's CSV parser: RFC 4180
+    quoting, strict (a wrong field count is an error), rejected lines skipped, every field text.
+    `line` is the physical line only while every line after the header is one record (the
+    caller checks that: rows + 1 = lines)."""
+    columns = ", ".join(f"'c{i}': 'VARCHAR'" for i in range(1, len(header) + 1))
+    return f"""(SELECT ordinality + 1 AS line, *
+                FROM read_csv({_literal(str(path))}, columns={{{columns}}}, header=true, auto_detect=false,
+                              delim={_literal(profile.delimiter)}, quote='"', escape='"',
+                              encoding={_literal(profile.encoding)}, strict_mode=true, null_padding=false,
+                              ignore_errors=true)
+                WITH ORDINALITY)"""
+
+
+def _literal(text: str) -> str:
+    """A SQL string literal (for a view, which cannot take parameters)."""
+    return "'" + text.replace("'", "''") + "'"
+
+
+def prepare_file(path: Path, profile: SourceProfile, mem: duckdb.DuckDBPyConnection | None = None,
+                 scan: FileScan | None = None) -> Prepared:
+    """Scan the file (unless `scan` is given) and, when it is a CSV file fit for the fast path, read its records.
 
     Needs no database: a private in-memory DuckDB runs the CSV reader (`mem`, else a new one), so
     ingest can prepare the next files in worker threads while the current one is stored. The records are
@@ -162,23 +187,17 @@ def prepare_file(path: Path, profile: SourceProfile, mem: duckdb.DuckDBPyConnect
     line it rejects, and skipped lines, blank lines and quoted line breaks all leave fewer
     records than lines while nothing leaves more.
     """
-    scan = scan_file(path, profile.delimiter)
-    fmt = file_format(path, profile)
-    header = read_header(path, profile) if fmt == "csv" else []
-    if not (fmt == "csv" and profile.header and scan.clean_endings and scan.lines > 0):
+    scan = scan or scan_file(path, profile.delimiter)
+    header = read_header(path, profile) if file_format(path, profile) == "csv" else []
+    if not fast_path_fits(path, profile, scan):
         return Prepared(path, scan, header, None)
-    columns = ", ".join(f"'c{i}': 'VARCHAR'" for i in range(1, len(header) + 1))
-    query = f"""SELECT ordinality + 1 AS line, *
-                FROM read_csv($path, columns={{{columns}}}, header=true, auto_detect=false, delim=$delim, quote='"',
-                              escape='"', encoding=$enc, strict_mode=true, null_padding=false, ignore_errors=true)
-                WITH ORDINALITY"""
-    params = {"path": str(path), "delim": profile.delimiter, "enc": profile.encoding}
+    query = f"SELECT * FROM {csv_records(path, header, profile)}"
     try:
         if mem is not None:
-            records = mem.sql(query, params=params).to_arrow_table()
+            records = mem.sql(query).to_arrow_table()
         else:
             with duckdb.connect() as own:
-                records = own.sql(query, params=params).to_arrow_table()
+                records = own.sql(query).to_arrow_table()
     except duckdb.Error:
         return Prepared(path, scan, header, None)
     return Prepared(path, scan, header, records if records.num_rows + 1 == scan.lines else None)
@@ -205,15 +224,22 @@ def stage_source(con: duckdb.DuckDBPyConnection, prepared: Prepared, profile: So
 
 
 def _stage_prepared(con: duckdb.DuckDBPyConnection, prepared: Prepared, profile: SourceProfile, table: str) -> None:
-    """_src as a temp view over the prepared records, picking the wanted columns by position."""
-    index = {name: i + 1 for i, name in enumerate(prepared.header)}
+    """_src as a temp view over the prepared records."""
+    con.register("_records", prepared.records)
+    stage_records(con, "_records", prepared.header, prepared.scan.padded, profile, table)
+
+
+def stage_records(con: duckdb.DuckDBPyConnection, records: str, header: list[str], padded: bool,
+                  profile: SourceProfile, table: str) -> None:
+    """_src as a temp view over fast-path `records` (a relation: line, c1 ... cN), picking the
+    wanted columns by position."""
+    index = {name: i + 1 for i, name in enumerate(header)}
     # trim only when some field is padded: trimming every field costs a fifth of the read
-    field = "trim(c{})" if prepared.scan.padded else "c{}"
+    field = "trim(c{})" if padded else "c{}"
     select = [f"NULLIF({field.format(index[src])}, '') AS {col}" if src in index else f"NULL::VARCHAR AS {col}"
               for col, src in _wanted(profile, table).items()]
-    con.register("_records", prepared.records)
     con.execute(f"CREATE OR REPLACE TEMP VIEW _src AS SELECT line, false AS _malformed, NULL::VARCHAR AS _raw, "
-                f"{', '.join(select)} FROM _records")
+                f"{', '.join(select)} FROM {records}")
 
 
 def unstage(con: duckdb.DuckDBPyConnection, staged: Staged | None) -> None:
