@@ -494,3 +494,92 @@ def test_overlapping_impact_windows_merge_into_spans():
     assert spans[["onset_at", "measured_at"]].values.tolist() == [[t, t + pd.Timedelta(days=5)],
                                                                   [t + pd.Timedelta(days=9), t + pd.Timedelta(days=10)]]
     assert spans["n_signals"].tolist() == [2, 1] and spans["rules"].tolist() == ["WE1, WE2", "limit"]
+
+
+def test_warm_up_fills_every_fleet_wide_query_of_the_pages(monkeypatch, tmp_path):
+    # After dashboard.warm.warm_caches (run by the server before it listens), the pages' first
+    # views with their default controls run no query on the snapshot, except those of one unit.
+    from dashboard import loaders, warm
+    db = build_fleet_db(tmp_path / "warm.duckdb", n_units=4, days=30)
+    monkeypatch.setenv("BREATHFLEET_DB", str(db))
+    steps = warm.warm_caches()
+    assert set(steps) >= {"header", "fleet", "queue", "comparison", "lots", "data quality"}
+    ran: list[str] = []
+    query_cursor = loaders.SnapshotReader.cursor
+
+    def counting_cursor(self, token):  # every query on the snapshot takes a cursor
+        import inspect
+        names = [f.frame.f_locals.get("name") for f in inspect.stack()[1:6] if f.function == "_query"]
+        ran.append(names[0] if names else "library call")
+        return query_cursor(self, token)
+
+    monkeypatch.setattr(loaders.SnapshotReader, "cursor", counting_cursor)
+    for page in ("fleet", "queue", "comparison", "lots", "data_quality", "digest"):
+        at = run_page(monkeypatch, db, page)
+        assert not at.exception, [e.value for e in at.exception]
+    assert ran == []
+    at = run_page(monkeypatch, db, "unit")
+    assert not at.exception
+    assert ran and all(n is None or n.startswith("dashboard_unit_") or n == "library call" for n in ran), ran
+    assert "dashboard_unit_list" not in ran
+
+
+def test_warm_up_without_a_database_does_nothing(monkeypatch, tmp_path):
+    from dashboard import warm
+    monkeypatch.delenv("BREATHFLEET_DB", raising=False)
+    assert warm.warm_caches() == {}
+    monkeypatch.setenv("BREATHFLEET_DB", str(tmp_path / "none.duckdb"))
+    assert warm.warm_caches() == {}
+
+
+def test_keep_warm_warms_again_after_a_publish(monkeypatch, tmp_path):
+    import threading
+
+    import duckdb
+
+    from dashboard import warm
+    from pipeline.db import publish_snapshot
+    db = build_fleet_db(tmp_path / "kw.duckdb", n_units=3, days=20)
+    monkeypatch.setenv("BREATHFLEET_DB", str(db))
+    calls = []
+    monkeypatch.setattr(warm, "warm_caches", lambda: calls.append(time.monotonic()) or {})
+    stop = threading.Event()
+    thread = warm.keep_warm(poll_s=0.05, stop=stop)
+    try:
+        time.sleep(0.3)
+        assert calls == []  # nothing new published
+        con = duckdb.connect(str(db))
+        publish_snapshot(con, db)
+        con.close()
+        deadline = time.monotonic() + 10
+        while not calls and time.monotonic() < deadline:
+            time.sleep(0.05)
+        assert len(calls) == 1
+    finally:
+        stop.set()
+        thread.join(timeout=5)
+
+
+def test_index_page_names_the_server_root(monkeypatch):
+    # Streamlit's frontend otherwise probes <page>/_stcore/health first, gets a 404 and retries at
+    # the root after a back-off: dashboard.serve makes index.html say where the root is.
+    import asyncio
+
+    from starlette.responses import FileResponse
+
+    from dashboard import serve
+    from streamlit import file_util
+    from streamlit.web.server.starlette import starlette_static_routes as routes
+    monkeypatch.setattr(routes, "create_streamlit_static_handler", routes.create_streamlit_static_handler)
+    assert serve._announce_server_root()
+    handler = routes.create_streamlit_static_handler(file_util.get_static_dir(), None)
+
+    def get(path):
+        scope = {"type": "http", "method": "GET", "path": "/" + path, "headers": [], "root_path": ""}
+        return asyncio.run(handler.get_response(path, scope))
+
+    for path in ("", "unit"):
+        body = get(path).body.decode("utf-8")
+        assert "<head><script>window.__streamlit=Object.assign({BACKEND_BASE_URL:window.location.origin+'/'}" in body
+        assert 'id="root"' in body
+    assert isinstance(get("favicon.png"), FileResponse)

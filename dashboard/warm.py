@@ -1,0 +1,111 @@
+"""Warm the dashboard's caches at server start and again after each publish.
+
+`breathfleet dashboard` (dashboard.serve) calls `warm_caches()` before the server listens, so the
+first visitor of each page does not pay for opening the snapshot or for the page's fleet-wide
+queries; a thread (`keep_warm`) runs it again when a writer publishes a new snapshot (every
+cache is keyed on the snapshot, so the old entries are no longer read) and before the query
+cache's time to live runs out. What is warmed is what every visitor's first view of a page reads
+with the page's default controls: the header's data range, the fleet summaries, the signals of
+the last 7 days, the fleet trend, the service queue, the unit list, the funnel at the first level
+and default window, the lots page (its first lot's units), the data-quality page (its first
+quarantine reason's sample). Queries for one unit (charts, events, estimates, budget) are not
+warmed: they run when a unit is opened. One Altair spec of each fleet chart is built too (the
+first spec a process builds pays for Altair's lazy set-up).
+
+Nothing here is needed for correctness: a step that fails is skipped (the page then runs the
+query itself and shows the problem as it would without warming).
+"""
+
+from __future__ import annotations
+
+import logging
+import threading
+import time
+from collections.abc import Callable
+
+from dashboard import figures, loaders
+
+_LOG = logging.getLogger("breathfleet.dashboard")
+
+
+def _steps() -> list[tuple[str, Callable[[], object]]]:
+    def fleet():
+        states = loaders.unit_states(signal_days=loaders.FLEET_SIGNAL_DAYS)
+        loaders.load("dashboard_signals_recent", days=loaders.FLEET_SIGNAL_DAYS)
+        trend = loaders.load("dashboard_fleet_trend")
+        if states is not None and not states.empty:
+            figures.vega_lite_spec(figures.state_by_region(loaders.state_counts(states, ["region"])))
+        if trend is not None and not trend.empty:
+            figures.vega_lite_spec(figures.fleet_trend(trend, loaders.tolerance_pct()))
+
+    def comparison():
+        levels = loaders.load("dashboard_levels")
+        if levels is None or levels.empty:
+            return
+        level = levels["level"].tolist()[0]  # a Python float, as the selectbox returns (the cache key)
+        args = {"level": level, "days": loaders.FUNNEL_DEFAULT_DAYS, "overdispersed": loaders.FUNNEL_DEFAULT_OVERDISPERSED}
+        units = loaders.load("dashboard_funnel_units", max_points=loaders.MAX_POINTS, **args)
+        limits = loaders.load("dashboard_funnel_limits", **args)
+        if units is not None and limits is not None and not units.empty and not limits.empty:
+            figures.vega_lite_spec(figures.funnel_chart(units, limits))
+
+    def lots():
+        usage = loaders.load("dashboard_lot_usage")
+        effects = loaders.load("dashboard_lot_effects")
+        for name in ("dashboard_lot_acceptance", "dashboard_variance_components", "dashboard_model_diagnostics"):
+            loaders.load(name)
+        if effects is not None and not effects.empty:
+            figures.vega_lite_spec(figures.lot_effects_chart(effects))
+        if usage is not None and not usage.empty:
+            loaders.load("dashboard_lot_units", lot_id=usage["lot_id"].tolist()[0])
+
+    def data_quality():
+        loaders.load("dashboard_ingest_ledger")
+        reasons = loaders.load("dashboard_quarantine_reasons")
+        if reasons is not None and not reasons.empty:
+            loaders.load("dashboard_quarantine_sample", reason=reasons["reason"].tolist()[0])
+            figures.vega_lite_spec(figures.quarantine_chart(reasons))
+        loaders.load("dashboard_silent_units", days=loaders.settings().queue.silence_days)
+        loaders.load("dashboard_verdict_disagreements")
+
+    return [("header", loaders.data_range), ("summary", loaders.summary_state), ("fleet", fleet),
+            ("queue", lambda: loaders.load("dashboard_queue")), ("unit list", lambda: loaders.load("dashboard_unit_list")),
+            ("comparison", comparison), ("lots", lots), ("data quality", data_quality)]
+
+
+def warm_caches() -> dict[str, float]:
+    """Run every page's fleet-wide queries once on the current snapshot; seconds per step.
+    Does nothing without a database (BREATHFLEET_DB unset or no file yet)."""
+    timings: dict[str, float] = {}
+    if loaders.data_token() is None:
+        return timings
+    for name, step in _steps():
+        t = time.perf_counter()
+        try:
+            step()
+        except Exception as exc:  # noqa: BLE001 - warming is optional; the page reports the problem itself
+            _LOG.info("dashboard warm-up step %s skipped: %s", name, exc)
+        timings[name] = time.perf_counter() - t
+    return timings
+
+
+def keep_warm(poll_s: float = 5.0, refresh_s: float = loaders.QUERY_TTL_S + 5, stop: threading.Event | None = None) -> threading.Thread:
+    """Start a daemon thread that warms again when a new snapshot is published (checked every
+    `poll_s` seconds) and every `refresh_s` seconds (just after the query cache's time to live,
+    loaders.QUERY_TTL_S, has dropped the entries warmed before)."""
+    stop = stop or threading.Event()
+
+    def run() -> None:
+        token, warmed_at = loaders.data_token(), time.monotonic()
+        while not stop.wait(poll_s):
+            try:
+                now = loaders.data_token()
+            except OSError:
+                continue
+            if now is not None and (now != token or time.monotonic() - warmed_at >= refresh_s):
+                warm_caches()
+                token, warmed_at = now, time.monotonic()
+
+    thread = threading.Thread(target=run, name="dashboard-keep-warm", daemon=True)
+    thread.start()
+    return thread
