@@ -20,8 +20,9 @@ Fast path for the common CSV file (a header line, one record per physical line):
 CSV parser reads the fields directly (RFC 4180 quoting, strict: a wrong field count is an error).
 It is taken only when `scan_file` saw clean line endings and the parser returns exactly one record
 per line after the header, so `WITH ORDINALITY` + 1 is the physical line number. `prepare_file`
-does this without the database (ingest runs it for the next file in a second thread), and `_src`
-is then a view over the prepared records. Otherwise the file is staged as lines as above. The
+does this without the database, and `_src` is then a view over the prepared records (ingest's
+worker threads go further: they parse a checks file straight from `csv_records`). Otherwise the
+file is staged as lines as above. The
 fast path's `_src` has no `_raw`: `raw_lines` reads the physical lines of the rows that go to
 quarantine.
 """
