@@ -42,6 +42,8 @@ QUERY_TTL_S = 3600  # a cached query result is dropped after this many seconds
 FLEET_SIGNAL_DAYS = 7  # fleet overview: signals of the last days of data
 FUNNEL_DEFAULT_DAYS = 90  # comparison: the funnel's window
 FUNNEL_DEFAULT_OVERDISPERSED = True  # comparison: limits allow for unit-to-unit spread
+UNIT_WINDOWS = {"90 days": 90, "180 days": 180, "1 year": 365, "All": None}  # unit: "Time shown"
+UNIT_DEFAULT_WINDOW = "90 days"
 SOFTWARE_VERSION = __version__
 _REQUIRES = re.compile(r"^--\s*requires:\s*(.+)$", re.MULTILINE)
 
@@ -204,6 +206,15 @@ def data_range() -> dict[str, Any] | None:
     if df is None or df.empty or pd.isna(df.loc[0, "first_check_at"]):
         return None
     return df.iloc[0].to_dict()
+
+
+def unit_window_since(at_level: pd.Series, days: int | None):
+    """Start of a unit page's time window at one level (a row of dashboard_unit_levels): the
+    latest `days` days of its checks (all of them for None), as the datetime the queries take."""
+    since = pd.Timestamp(at_level["first_check_at"])
+    if days is not None:
+        since = max(since, pd.Timestamp(at_level["last_check_at"]) - pd.Timedelta(days=days))
+    return since.to_pydatetime()
 
 
 UNIT_STATES = ("in control", "signal", "out of tolerance", "not charted")

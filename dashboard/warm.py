@@ -9,7 +9,8 @@ with the page's default controls: the header's data range, the fleet summaries, 
 the last 7 days, the fleet trend, the service queue, the unit list, the funnel at the first level
 and default window, the lots page (its first lot's units), the data-quality page (its first
 quarantine reason's sample). Queries for one unit (charts, events, estimates, budget) are not
-warmed: they run when a unit is opened. One Altair spec of each fleet chart is built too (the
+warmed at start: they run when a unit is opened, or earlier when the service queue prefetches
+the unit its "Open a unit" box holds (`prefetch_unit`). One Altair spec of each fleet chart is built too (the
 first spec a process builds pays for Altair's lazy set-up).
 
 Nothing here is needed for correctness: a step that fails is skipped (the page then runs the
@@ -23,9 +24,23 @@ import threading
 import time
 from collections.abc import Callable
 
-from dashboard import figures, loaders
+import pandas as pd
+
+from dashboard import figures, library, loaders
 
 _LOG = logging.getLogger("breathfleet.dashboard")
+THREAD_PREFIX = "dashboard-"
+
+
+class _BackgroundThreads(logging.Filter):
+    """Drop Streamlit's "missing ScriptRunContext" warning for this module's threads: they call
+    the cached loaders outside any session on purpose (the caches are global)."""
+
+    def filter(self, record: logging.LogRecord) -> bool:
+        return not threading.current_thread().name.startswith(THREAD_PREFIX)
+
+
+logging.getLogger("streamlit.runtime.scriptrunner_utils.script_run_context").addFilter(_BackgroundThreads())
 
 
 def _steps() -> list[tuple[str, Callable[[], object]]]:
@@ -89,6 +104,55 @@ def warm_caches() -> dict[str, float]:
     return timings
 
 
+def unit_default_view(unit_id: str) -> None:
+    """Run the queries of the unit page's first view of `unit_id` (first level, default time
+    window, individuals / moving range) and its uncertainty budget, with the page's parameters."""
+    levels = loaders.load("dashboard_unit_levels", instrument_id=unit_id)
+    if levels is None or levels.empty:
+        return
+    level = levels["level"].tolist()[0]  # the level box's first option, a Python float
+    since = loaders.unit_window_since(levels.iloc[0], loaders.UNIT_WINDOWS[loaders.UNIT_DEFAULT_WINDOW])
+    loaders.load("dashboard_unit_events", instrument_id=unit_id)
+    loaders.load("dashboard_unit_signals", instrument_id=unit_id, since=since)
+    loaders.load("dashboard_unit_points", instrument_id=unit_id, level=level, since=since, max_points=loaders.MAX_POINTS)
+    loaders.load("dashboard_unit_baselines", instrument_id=unit_id)
+    estimates = loaders.load("dashboard_unit_estimates", instrument_id=unit_id)
+    if estimates is not None and not estimates.empty:
+        loaders.load("dashboard_unit_forecast", instrument_id=unit_id,
+                     horizon_days=loaders.settings().queue.calibration_interval_days)
+    library.uncertainty_budget(unit_id, level, pd.Timestamp(levels["last_check_at"].max()))
+
+
+_prefetched: dict[str, loaders.DataToken] = {}
+_prefetch_lock = threading.Lock()
+
+
+def prefetch_unit(unit_id: str | None) -> threading.Thread | None:
+    """Fetch the unit page's first view of `unit_id` in a daemon thread, once per unit and
+    snapshot: the service queue calls it for the unit its "Open a unit" box holds, so that the
+    unit page, when opened, finds its queries cached. Returns the thread, or None when there was
+    nothing to do."""
+    token = loaders.data_token()
+    if unit_id is None or token is None:
+        return None
+    with _prefetch_lock:
+        if _prefetched.get(unit_id) == token:
+            return None
+        if len(_prefetched) > 256:
+            _prefetched.clear()
+        _prefetched[unit_id] = token
+
+    def run() -> None:
+        try:
+            unit_default_view(unit_id)
+        except Exception as exc:  # noqa: BLE001 - a prefetch is optional; the page reports problems itself
+            _LOG.info("dashboard prefetch of unit %s skipped: %s", unit_id, exc)
+
+    thread = threading.Thread(target=run, name=f"{THREAD_PREFIX}prefetch", daemon=True)
+    thread.start()
+    return thread
+
+
 def keep_warm(poll_s: float = 5.0, refresh_s: float = loaders.QUERY_TTL_S + 5, stop: threading.Event | None = None) -> threading.Thread:
     """Start a daemon thread that warms again when a new snapshot is published (checked every
     `poll_s` seconds) and every `refresh_s` seconds (just after the query cache's time to live,
@@ -106,6 +170,6 @@ def keep_warm(poll_s: float = 5.0, refresh_s: float = loaders.QUERY_TTL_S + 5, s
                 warm_caches()
                 token, warmed_at = now, time.monotonic()
 
-    thread = threading.Thread(target=run, name="dashboard-keep-warm", daemon=True)
+    thread = threading.Thread(target=run, name=f"{THREAD_PREFIX}keep-warm", daemon=True)
     thread.start()
     return thread

@@ -5,7 +5,7 @@ import json
 import pandas as pd
 import streamlit as st
 
-from dashboard import frame, loaders
+from dashboard import frame, loaders, warm
 
 
 def _reasons(value) -> str:
@@ -78,6 +78,7 @@ if rows:
 left, right = st.columns([3, 1])
 if not shown.empty:
     chosen = left.selectbox("Open a unit", shown["instrument_id"].tolist(), key="queue_open_unit")
+    warm.prefetch_unit(chosen)  # its page's queries run in the background while the queue is read
     if right.button("Open unit page", key="queue_open_button"):
         st.switch_page("views/unit.py", query_params={"unit": str(chosen)})
 st.download_button("Download the queue as CSV", shown.to_csv(index=False).encode("utf-8"),

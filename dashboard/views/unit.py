@@ -6,8 +6,8 @@ import streamlit as st
 
 from dashboard import figures, frame, library, loaders
 
-WINDOWS = {"90 days": 90, "180 days": 180, "1 year": 365, "All": None}
-DEFAULT_WINDOW = "90 days"
+WINDOWS = loaders.UNIT_WINDOWS
+DEFAULT_WINDOW = loaders.UNIT_DEFAULT_WINDOW
 CHARTS = ["Individuals / moving range", "CUSUM", "EWMA", "Relative error"]
 
 frame.header("Unit", "Is this unit drifting, since when, and is it the unit or its lot?")
@@ -41,17 +41,13 @@ level = left.selectbox("Level (g/210L)", levels["level"].tolist(),
 window = right.radio("Time shown", list(WINDOWS), index=list(WINDOWS).index(DEFAULT_WINDOW), horizontal=True,
                      key="unit_window")
 at_level = levels[levels["level"] == level].iloc[0]
-days = WINDOWS[window]
-since = pd.Timestamp(at_level["first_check_at"])
-if days is not None:
-    since = max(since, pd.Timestamp(at_level["last_check_at"]) - pd.Timedelta(days=days))
-window_args = {"instrument_id": unit_id, "level": level, "since": since.to_pydatetime(),
-               "max_points": loaders.MAX_POINTS}
+since = loaders.unit_window_since(at_level, WINDOWS[window])
+window_args = {"instrument_id": unit_id, "level": level, "since": since, "max_points": loaders.MAX_POINTS}
 
 events = loaders.load("dashboard_unit_events", instrument_id=unit_id)
 if events is not None:  # service events, and lot changes at the level shown
     events = events[events["level"].isna() | (events["level"].round(3) == round(level, 3))]
-signals = loaders.load("dashboard_unit_signals", instrument_id=unit_id, since=since.to_pydatetime())
+signals = loaders.load("dashboard_unit_signals", instrument_id=unit_id, since=since)
 level_signals = None if signals is None else signals[signals["level"].round(3) == round(level, 3)]
 
 
