@@ -186,3 +186,64 @@ def test_padded_fields_are_trimmed_on_the_fast_path(two_databases):
     result = ingest_file(con, path, Settings(), prepared=prepared)
     assert (result.rows_stored, result.rows_quarantined) == (1, 0)
     assert con.execute("SELECT instrument_id, lot_id FROM checks").fetchall() == [("U1", "L1")]
+
+
+def test_scan_finds_lines_that_are_not_utf8(tmp_path):
+    # the UTF-8 byte sequences of RFC 3629 (section 4), through Python's codecs
+    path = tmp_path / "f.csv"
+    path.write_bytes(b"a,b\n1,\xc3\xa9\n2,\xff\n3,x\n4,\xe2\x82\n")   # valid e-acute; 0xff; a cut euro sign
+    assert readers.scan_file(path).unreadable == (3, 5)
+    # Latin-1 decodes every byte (Python's codecs, the reference for the encodings)
+    assert readers.scan_file(path, encoding="latin-1").unreadable == ()
+
+
+def test_scan_decodes_a_character_split_across_a_block_boundary(tmp_path):
+    path = tmp_path / "f.csv"
+    head = b"a,b\n" + b"x" * ((1 << 20) - 6) + b","
+    path.write_bytes(head + "€\n".encode("utf-8"))     # the euro sign's 3 bytes straddle the 1 MiB boundary
+    assert path.read_bytes()[(1 << 20) - 1:(1 << 20) + 2] == "€".encode("utf-8")
+    assert readers.scan_file(path).unreadable == ()
+
+
+def test_lines_that_are_not_text_are_quarantined_and_the_rest_stored(two_databases):
+    tmp, (con, _) = two_databases
+    rows = [good_row(i).encode() for i in range(6)]
+    rows[2] = rows[2].replace(b"OP-", b"OP\xff-")           # operator_id, line 4
+    rows[4] = rows[4].replace(b",L1,", b",L\xc3,")           # lot_id, line 6 (a cut two-byte sequence)
+    path = tmp / "bytes.csv"
+    path.write_bytes(HEADER.encode() + b"\n".join(rows) + b"\n")
+    result = list(iter_ingest(con, [path], Settings()))[0]
+    assert (result.rows_read, result.rows_stored, result.rows_duplicate, result.rows_quarantined) == (6, 4, 0, 2)
+    got = con.execute("SELECT line, field, reason, message, raw_line FROM quarantine ORDER BY line").fetchall()
+    assert [(g[0], g[1], g[2]) for g in got] == [(4, "operator_id", "malformed_line"), (6, "lot_id", "malformed_line")]
+    assert got[0][3].startswith("not valid utf-8 text: byte 0xff") and "OP\\xff-" in got[0][4]
+    assert con.execute("SELECT count(*) FROM checks WHERE line IN (4, 6)").fetchone()[0] == 0
+
+
+@pytest.mark.parametrize("ending", [b"\r\n", b"\n"])
+def test_a_stray_carriage_return_keeps_line_numbers_and_its_line_is_quarantined(two_databases, ending):
+    """An LF file with one CR LF line, and one line holding a CR inside it: DuckDB's line reader
+    would split there; the lines after must keep their physical numbers."""
+    tmp, (con, _) = two_databases
+    rows = [good_row(i).encode() for i in range(6)]
+    rows[1] += b"\r"                                       # line 3 ends in CR LF
+    rows[3] = rows[3].replace(b",S-1,", b",S-\r1,")         # line 5: a CR inside the site_id
+    path = tmp / "cr.csv"
+    path.write_bytes(HEADER.encode() + b"\n".join(rows) + ending)
+    scan = readers.scan_file(path)
+    assert (scan.lines, scan.clean_endings, scan.unreadable) == (7, False, (5,))
+    result = list(iter_ingest(con, [path], Settings()))[0]
+    assert (result.rows_read, result.rows_stored, result.rows_quarantined) == (6, 5, 1)
+    assert con.execute("SELECT list(line ORDER BY line) FROM checks").fetchone()[0] == [2, 3, 4, 6, 7]
+    assert con.execute("SELECT line, field, reason FROM quarantine").fetchall() == [(5, "site_id", "malformed_line")]
+
+
+@pytest.mark.parametrize("line_break", [b"\n", b"\r\n", b"\r"])
+def test_a_byte_order_mark_and_any_one_line_break_are_read(two_databases, line_break):
+    tmp, (con, _) = two_databases
+    path = tmp / "bom.csv"
+    text = HEADER + "\n".join(good_row(i) for i in range(5)) + "\n"
+    path.write_bytes(b"\xef\xbb\xbf" + text.encode().replace(b"\n", line_break))   # UTF-8 BOM (Unicode 15, 23.8)
+    result = list(iter_ingest(con, [path], Settings()))[0]
+    assert (result.rows_read, result.rows_stored, result.rows_quarantined) == (5, 5, 0)
+    assert con.execute("SELECT list(line ORDER BY line) FROM checks").fetchone()[0] == [2, 3, 4, 5, 6]

@@ -28,7 +28,8 @@ from pipeline.sources.profiles import (CANONICAL, CANONICAL_COLUMNS, CHECK_TYPES
                                        SourceProfile)
 from pipeline.sources.pseudonymise import operator_key, pseudonymise
 from pipeline.sources.readers import (Prepared, Staged, csv_records, fast_path_fits, file_format, prepare_file,
-                                      raw_lines, read_header, scan_file, stage_records, stage_source, unstage)
+                                      raw_lines, read_header, readable_copy, scan_source, stage_records,
+                                      stage_source, unreadable_lines, unstage)
 from pipeline.units import _SPELLINGS, TO_STORAGE
 
 
@@ -486,6 +487,10 @@ def ingest_file(con: duckdb.DuckDBPyConnection, path: str | Path, settings: Sett
     if key is None:
         key = operator_key(settings.ingest.operator_key_file)
     staged = None
+    # Lines that are not text, and mixed line endings: staged from a copy with every line ending in
+    # LF and the unreadable lines empty (same line numbers); those lines are quarantined as they are.
+    unreadable = unreadable_lines(path, profile.encoding) if prepared.scan.unreadable else []
+    copy = readable_copy(path, prepared.scan.unreadable) if unreadable or not prepared.scan.clean_endings else None
     con.execute("BEGIN TRANSACTION")
     try:
         file_id = con.execute("SELECT coalesce(max(file_id), 0) + 1 FROM ingest_ledger").fetchall()[0][0]
@@ -493,11 +498,19 @@ def ingest_file(con: duckdb.DuckDBPyConnection, path: str | Path, settings: Sett
         if parsed is not None and prepared.records is None:   # parsed ahead, no bad row: nothing to stage
             read = parsed.rows.num_rows
         else:
-            staged = stage_source(con, prepared, profile, table)
+            staged = stage_source(con, replace(prepared, path=copy) if copy else prepared, profile, table)
             read = con.execute("SELECT count(*) FROM _src").fetchall()[0][0]
         rules, params, bad_rows = _parse(con, profile, table, settings, now, parsed)
         quarantined = _quarantine(con, file_id, rules, params, staged, source=bad_rows,
                                   value_columns={"time_zone": "zone_raw"} if table == "checks" else None)
+        if unreadable:
+            con.execute("""INSERT INTO quarantine (file_id, line, field, value, reason, message, raw_line)
+                           SELECT $fid, unnest($l), unnest($f), NULL, $r, unnest($m), unnest($t)""",
+                        {"fid": file_id, "r": Q.MALFORMED_LINE.value, "l": [u.line for u in unreadable],
+                         "f": [u.field(prepared.header, profile.delimiter) for u in unreadable],
+                         "m": [u.message for u in unreadable], "t": [u.text for u in unreadable]})
+            read += len(unreadable)
+            quarantined += len(unreadable)
         if table == "checks":
             stored = _store_checks(con, file_id, key, parsed)
             duplicate = read - quarantined - stored
@@ -521,6 +534,9 @@ def ingest_file(con: duckdb.DuckDBPyConnection, path: str | Path, settings: Sett
         if prepared.parsed is not None and table == "checks":
             con.unregister("_parsed")
         raise
+    finally:
+        if copy is not None:
+            copy.unlink(missing_ok=True)
     return FileResult(file_id, str(path.resolve()), table, profile.name, read, stored, duplicate, quarantined,
                       started.isoformat(), finished.isoformat())
 
@@ -593,7 +609,7 @@ def _read_ahead(path: Path, profile: SourceProfile, table: str | None, reference
     """
     mem = _worker_connection()
     try:
-        scan = scan_file(path, profile.delimiter)
+        scan = scan_source(path, profile)
         header = read_header(path, profile) if file_format(path, profile) == "csv" else []
         if (reference is None or not fast_path_fits(path, profile, scan)
                 or detect_table(path, header, profile, table) != "checks"):

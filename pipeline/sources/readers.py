@@ -29,8 +29,11 @@ quarantine.
 
 from __future__ import annotations
 
+import codecs
 import hashlib
+import os
 import re
+import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -55,20 +58,25 @@ _LINES = ("read_csv($path, columns={'raw': 'VARCHAR'}, delim=chr(1), quote='', e
 
 @dataclass(frozen=True)
 class FileScan:
-    """What one pass over a file's bytes tells: its SHA-256, how its lines end, whether fields are padded."""
+    """What one pass over a file's bytes tells: its SHA-256, its lines, whether fields are padded."""
 
     sha256: str
     lines: int            # physical lines (a last line without a line break counts)
-    clean_endings: bool   # every line ends in LF, or every one in CR LF: no stray CR
+    clean_endings: bool   # every line ends in LF, or every one in CR LF, or every one in CR: no stray CR
     padded: bool          # a space or tab next to a delimiter, quote or line break, or a tab anywhere
+    unreadable: tuple[int, ...] = ()   # lines that are not text: see `unreadable_lines`
 
 
-def scan_file(path: Path, delimiter: str = ",") -> FileScan:
-    """Hash the file, count its line breaks and look for padded fields in one read (1 MiB blocks).
+def scan_file(path: Path, delimiter: str = ",", encoding: str | None = "utf-8") -> FileScan:
+    """Hash the file, count its line breaks, look for padded fields and check the text decodes, in
+    one read (1 MiB blocks).
 
     Padding is a space next to a field boundary: each block is translated so the delimiter, the
     double quote and CR all read as LF, and then two searches (" \\n", "\\n ") find a space on either
-    side of any boundary (half the time of one search per boundary and side).
+    side of any boundary (half the time of one search per boundary and side). Only blocks that are
+    not plain ASCII go through the decoder (of an ASCII-compatible encoding); when one fails, or the
+    line endings are mixed, a second pass finds the unreadable lines. `encoding` None: a binary
+    format (Parquet), only hashed.
     """
     digest = hashlib.sha256()
     newlines = crs = crlfs = 0
@@ -76,9 +84,15 @@ def scan_file(path: Path, delimiter: str = ",") -> FileScan:
     d = delimiter.encode("utf-8") if len(delimiter.encode("utf-8")) == 1 else None
     bounds = bytes.maketrans(d + b'"\r', b"\n\n\n") if d else None
     last = b""
+    decoder = _ascii_compatible_decoder(encoding) if encoding else None
+    decodes = True
     with open(path, "rb") as fh:
         for block in iter(lambda: fh.read(1 << 20), b""):
             digest.update(block)
+            if encoding is None:
+                continue
+            if decodes and decoder and (not block.isascii() or decoder.getstate()[0]):
+                decodes = _decodes(decoder, block)
             newlines += block.count(b"\n")
             cr = block.count(b"\r")   # single-byte searches are fast; pairs only when needed
             crs += cr
@@ -90,8 +104,103 @@ def scan_file(path: Path, delimiter: str = ",") -> FileScan:
                     edged = (last + block).translate(bounds)   # with the previous block's last byte
                     padded = b" \n" in edged or b"\n " in edged
             last = block[-1:]
-    lines = newlines + (1 if last not in (b"", b"\n") else 0)
-    return FileScan(digest.hexdigest(), lines, crs == 0 or (crs == crlfs == newlines), padded or last == b" ")
+    if encoding is None:
+        return FileScan(digest.hexdigest(), 0, True, False)
+    if newlines == 0 and crs > 0:   # CR alone ends every line (classic Mac OS)
+        lines, clean = crs + (1 if last != b"\r" else 0), True
+    else:
+        lines, clean = newlines + (1 if last not in (b"", b"\n") else 0), crs == 0 or crs == crlfs == newlines
+    if decodes and decoder:
+        decodes = _decodes(decoder, b"", final=True)
+    unreadable = () if decodes and clean else tuple(u.line for u in unreadable_lines(path, encoding))
+    return FileScan(digest.hexdigest(), lines, clean, padded or last == b" ", unreadable)
+
+
+def _ascii_compatible_decoder(encoding: str):
+    """An incremental decoder for `encoding` when ASCII bytes mean ASCII in it (UTF-8, Latin-1,
+    Windows-1252 ...), else None (no check)."""
+    try:
+        if b"\n,;\t\"az09".decode(encoding) != "\n,;\t\"az09":
+            return None
+        return codecs.getincrementaldecoder(encoding)()
+    except (LookupError, UnicodeDecodeError):
+        return None
+
+
+def _decodes(decoder, block: bytes, final: bool = False) -> bool:
+    try:
+        decoder.decode(block, final)
+        return True
+    except UnicodeDecodeError:
+        return False
+
+
+@dataclass(frozen=True)
+class UnreadableLine:
+    """A physical line that cannot be read as text: not valid in the file's encoding, or holding a
+    carriage return that is not part of its line break (DuckDB's readers would split the line there)."""
+
+    line: int
+    raw: bytes        # without its line break
+    at: int           # offset of the first bad byte
+    encoding: str
+
+    @property
+    def message(self) -> str:
+        if self.raw[self.at:self.at + 1] == b"\r":
+            return f"a carriage return at byte {self.at + 1} of the line is not part of its line break"
+        return (f"not valid {self.encoding} text: byte 0x{self.raw[self.at]:02x} at byte {self.at + 1} "
+                "of the line")
+
+    @property
+    def text(self) -> str:
+        """The line, with bytes that are not text written as \\x escapes."""
+        return self.raw.decode(self.encoding, "backslashreplace")
+
+    def field(self, header: list[str], delimiter: str) -> str | None:
+        """The column holding the first bad byte (by delimiters before it; quotes not considered)."""
+        k = self.raw[:self.at].count(delimiter.encode(self.encoding))
+        return header[k] if k < len(header) else None
+
+
+def _line_body(raw: bytes) -> bytes:
+    """A physical line without its line break (LF or CR LF)."""
+    body = raw[:-1] if raw.endswith(b"\n") else raw
+    return body[:-1] if body.endswith(b"\r") else body
+
+
+def unreadable_lines(path: Path, encoding: str) -> list[UnreadableLine]:
+    """The lines of the file that cannot be read as text (see UnreadableLine)."""
+    out = []
+    with open(path, "rb") as fh:
+        for n, raw in enumerate(fh, 1):
+            body = _line_body(raw)
+            cr = body.find(b"\r")
+            if cr >= 0:
+                out.append(UnreadableLine(n, body, cr, encoding))
+                continue
+            try:
+                body.decode(encoding)
+            except UnicodeDecodeError as exc:
+                out.append(UnreadableLine(n, body, exc.start, encoding))
+    return out
+
+
+def readable_copy(path: Path, unreadable: tuple[int, ...]) -> Path:
+    """A temporary copy of the file, every line ending in LF and the `unreadable` lines left empty
+    (so line numbers stay those of the file); the caller removes it."""
+    skip = set(unreadable)
+    fd, name = tempfile.mkstemp(suffix=path.suffix, prefix="breathfleet-")
+    with open(path, "rb") as src, os.fdopen(fd, "wb") as dst:
+        for n, raw in enumerate(src, 1):
+            dst.write((b"" if n in skip else _line_body(raw)) + b"\n")
+    return Path(name)
+
+
+def scan_source(path: Path, profile: SourceProfile) -> FileScan:
+    """scan_file with the profile's delimiter, and its encoding for a text format."""
+    text = file_format(path, profile) != "parquet"
+    return scan_file(path, profile.delimiter, profile.encoding if text else None)
 
 
 def file_format(path: Path, profile: SourceProfile) -> str:
@@ -109,9 +218,15 @@ def file_format(path: Path, profile: SourceProfile) -> str:
 def read_header(path: Path, profile: SourceProfile) -> list[str]:
     """Column names of a CSV file's first line."""
     try:
-        with open(path, encoding=profile.encoding, newline="") as fh:
-            first = fh.readline().rstrip("\r\n")
-    except (OSError, UnicodeDecodeError, LookupError) as exc:
+        with open(path, "rb") as fh:
+            head = b""
+            while not re.search(b"[\r\n]", head) and (chunk := fh.read(1 << 16)):
+                head += chunk
+        first = re.split(b"\r|\n", head, maxsplit=1)[0].decode(profile.encoding)
+        first = first.removeprefix("\ufeff")   # a byte order mark
+    except UnicodeDecodeError as exc:
+        raise InputError(f"the header is not valid {profile.encoding} text", file=str(path), line=1) from exc
+    except (OSError, LookupError) as exc:
         raise InputError(f"cannot read file: {exc}", file=str(path)) from exc
     return [c.strip().strip('"') for c in first.split(profile.delimiter)]
 
@@ -156,7 +271,8 @@ class Prepared:
 
 def fast_path_fits(path: Path, profile: SourceProfile, scan: FileScan) -> bool:
     """A CSV file with a header and clean line endings: DuckDB's CSV parser may read its records."""
-    return file_format(path, profile) == "csv" and profile.header and scan.clean_endings and scan.lines > 0
+    return (file_format(path, profile) == "csv" and profile.header and scan.clean_endings and scan.lines > 0
+            and not scan.unreadable)
 
 
 def csv_records(path: Path, header: list[str], profile: SourceProfile) -> str:
@@ -188,7 +304,7 @@ def prepare_file(path: Path, profile: SourceProfile, mem: duckdb.DuckDBPyConnect
     line it rejects, and skipped lines, blank lines and quoted line breaks all leave fewer
     records than lines while nothing leaves more.
     """
-    scan = scan or scan_file(path, profile.delimiter)
+    scan = scan or scan_source(path, profile)
     header = read_header(path, profile) if file_format(path, profile) == "csv" else []
     if not fast_path_fits(path, profile, scan):
         return Prepared(path, scan, header, None)
