@@ -4,14 +4,15 @@
 first visitor of each page does not pay for opening the snapshot or for the page's fleet-wide
 queries; a thread (`keep_warm`) runs it again when a writer publishes a new snapshot (every
 cache is keyed on the snapshot, so the old entries are no longer read) and before the query
-cache's time to live runs out. What is warmed is what every visitor's first view of a page reads
-with the page's default controls: the header's data range, the fleet summaries, the signals of
-the last 7 days, the fleet trend, the service queue, the unit list, the funnel at the first level
-and default window, the lots page (its first lot's units), the data-quality page (its first
-quarantine reason's sample). Queries for one unit (charts, events, estimates, budget) are not
-warmed at start: they run when a unit is opened, or earlier when the service queue prefetches
-the unit its "Open a unit" box holds (`prefetch_unit`). One Altair spec of each fleet chart is built too (the
-first spec a process builds pays for Altair's lazy set-up).
+cache's time to live runs out. What is warmed is
+what every visitor's first view of a page reads with the page's default controls: the header's
+data range, the fleet summaries, the signals of the last 7 days, the fleet trend, the service
+queue, the unit list and the first unit's view (the unit page opened without a unit shows the
+first of the list), the funnel at the first level and default window, the lots page (its first
+lot's units), the data-quality page (its first quarantine reason's sample). Other units'
+queries are not warmed at start: they run when a unit is opened, or earlier when the service
+queue prefetches the unit its "Open a unit" box holds (`prefetch_unit`). One Altair spec of
+each fleet chart is built too (the first spec a process builds pays for Altair's lazy set-up).
 
 Nothing here is needed for correctness: a step that fails is skipped (the page then runs the
 query itself and shows the problem as it would without warming).
@@ -53,6 +54,11 @@ def _steps() -> list[tuple[str, Callable[[], object]]]:
         if trend is not None and not trend.empty:
             figures.vega_lite_spec(figures.fleet_trend(trend, loaders.tolerance_pct()))
 
+    def unit():  # the unit page opened without a unit shows the first of the list
+        units = loaders.load("dashboard_unit_list")
+        if units is not None and not units.empty:
+            unit_default_view(units["instrument_id"].tolist()[0])
+
     def comparison():
         levels = loaders.load("dashboard_levels")
         if levels is None or levels.empty:
@@ -84,7 +90,7 @@ def _steps() -> list[tuple[str, Callable[[], object]]]:
         loaders.load("dashboard_verdict_disagreements")
 
     return [("header", loaders.data_range), ("summary", loaders.summary_state), ("fleet", fleet),
-            ("queue", lambda: loaders.load("dashboard_queue")), ("unit list", lambda: loaders.load("dashboard_unit_list")),
+            ("queue", lambda: loaders.load("dashboard_queue")), ("unit", unit),
             ("comparison", comparison), ("lots", lots), ("data quality", data_quality)]
 
 

@@ -498,12 +498,12 @@ def test_overlapping_impact_windows_merge_into_spans():
 
 def test_warm_up_fills_every_fleet_wide_query_of_the_pages(monkeypatch, tmp_path):
     # After dashboard.warm.warm_caches (run by the server before it listens), the pages' first
-    # views with their default controls run no query on the snapshot, except those of one unit.
+    # views with their default controls run no query on the snapshot; another unit's page does.
     from dashboard import loaders, warm
     db = build_fleet_db(tmp_path / "warm.duckdb", n_units=4, days=30)
     monkeypatch.setenv("BREATHFLEET_DB", str(db))
     steps = warm.warm_caches()
-    assert set(steps) >= {"header", "fleet", "queue", "comparison", "lots", "data quality"}
+    assert set(steps) >= {"header", "fleet", "queue", "unit", "comparison", "lots", "data quality"}
     ran: list[str] = []
     query_cursor = loaders.SnapshotReader.cursor
 
@@ -515,11 +515,11 @@ def test_warm_up_fills_every_fleet_wide_query_of_the_pages(monkeypatch, tmp_path
 
     monkeypatch.setattr(loaders.SnapshotReader, "cursor", counting_cursor)
     monkeypatch.setattr(warm, "prefetch_unit", lambda unit: None)  # the queue's prefetch: its own test
-    for page in ("fleet", "queue", "comparison", "lots", "data_quality", "digest"):
+    for page in ("fleet", "queue", "unit", "comparison", "lots", "data_quality", "digest"):
         at = run_page(monkeypatch, db, page)
         assert not at.exception, [e.value for e in at.exception]
     assert ran == []
-    at = run_page(monkeypatch, db, "unit")
+    at = run_page(monkeypatch, db, "unit", {"unit": "TX1003"})
     assert not at.exception
     assert ran and all(n is None or n.startswith("dashboard_unit_") or n == "library call" for n in ran), ran
     assert "dashboard_unit_list" not in ran
