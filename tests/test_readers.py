@@ -247,3 +247,18 @@ def test_a_byte_order_mark_and_any_one_line_break_are_read(two_databases, line_b
     result = list(iter_ingest(con, [path], Settings()))[0]
     assert (result.rows_read, result.rows_stored, result.rows_quarantined) == (5, 5, 0)
     assert con.execute("SELECT list(line ORDER BY line) FROM checks").fetchone()[0] == [2, 3, 4, 5, 6]
+
+
+def test_both_paths_trim_padding_inside_quotes(two_databases):
+    """The fast path trims a padded file's fields after DuckDB's parser removed the quotes; the line
+    path must store the same values."""
+    tmp, (fast, lines) = two_databases
+    path = tmp / "quoted.csv"
+    path.write_text(HEADER + good_row(1).replace(",L1,", ',"  L1 ",').replace(",OP-1,", ',"OP-1 ",') + "\n",
+                    encoding="utf-8")
+    prepared = readers.prepare_file(path, CANONICAL)
+    assert prepared.records is not None and prepared.scan.padded
+    ingest_file(fast, path, Settings(), prepared=prepared)
+    ingest_file(lines, path, Settings(), prepared=readers.Prepared(path, prepared.scan, prepared.header, None))
+    assert _contents(fast) == _contents(lines)
+    assert fast.execute("SELECT lot_id FROM checks").fetchall() == [("L1",)]

@@ -388,7 +388,8 @@ def _csv_columns(profile: SourceProfile, table: str, header: list[str]) -> list[
     select = []
     for col, src in _wanted(profile, table).items():
         i = index.get(src)
-        expr = f"NULLIF(replace(trim(trim(_f[{i}]), '\"'), '\"\"', '\"'), '')" if i else "NULL::VARCHAR"
+        # unquoted, then trimmed like the fast path's fields (padding inside the quotes too)
+        expr = f"NULLIF(trim(replace(trim(trim(_f[{i}]), '\"'), '\"\"', '\"')), '')" if i else "NULL::VARCHAR"
         select.append(f"{expr} AS {col}")
     return select
 
