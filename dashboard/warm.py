@@ -21,6 +21,7 @@ query itself and shows the problem as it would without warming).
 from __future__ import annotations
 
 import logging
+import sys
 import threading
 import time
 from collections.abc import Callable
@@ -173,7 +174,11 @@ def keep_warm(poll_s: float = 5.0, refresh_s: float = loaders.QUERY_TTL_S + 5, s
             except OSError:
                 continue
             if now is not None and (now != token or time.monotonic() - warmed_at >= refresh_s):
+                why = "a new snapshot" if now != token else "the cache's time to live"
+                t = time.perf_counter()
                 warm_caches()
+                print(f"breathfleet dashboard: caches warmed again after {why} in {time.perf_counter() - t:.1f} s",
+                      file=sys.stderr, flush=True)
                 token, warmed_at = now, time.monotonic()
 
     thread = threading.Thread(target=run, name=f"{THREAD_PREFIX}keep-warm", daemon=True)
