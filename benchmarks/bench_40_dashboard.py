@@ -11,13 +11,20 @@ from the moment it answers its health check. Since the server warms itself befor
 (dashboard/serve.py, dashboard/warm.py), that start has already imported the libraries, opened
 the published snapshot and run every page's fleet-wide queries for the pages' default controls
 (data range, fleet summaries, signals, trend, queue, unit list, funnel at the first level, lots,
-data quality) and built one Altair spec per fleet chart. A cold render therefore still pays for
+data quality) and the unit page's default view (the first unit of the list, which /unit shows)
+and built one Altair spec per fleet chart. A cold render therefore still pays for
 the browser loading Streamlit's frontend, the websocket session, the page script (Streamlit
 elements, figure building, spec conversion, any per-unit query) and the browser's drawing, but
 not for those queries: they ran while the server started. `server_start_s` reports that
 start (process launch to health check, median over the cold servers) so its cost stays
 visible. Figures from before the warm-up existed measured empty caches (the queries ran during
 the first render) and are not comparable one to one.
+
+The drill-down picks a unit in the queue's "Open a unit" box, waits until the queue has settled
+(SETTLE_S) and clicks "Open unit page": meanwhile the queue prefetches that unit's first view
+(dashboard.warm.prefetch_unit), as it does for a user who picks a unit and then clicks, so the
+drill-down measures the page switch and drawing with the unit's queries cached. unit_by_link
+opens a unit that was neither warmed nor prefetched (its queries run during the render).
 Targets (issue 7): first render < 2 s, drill-down < 1 s.
 
 The database is the benchmark fleet as a program runs it: a copy of the ingested fleet
