@@ -565,6 +565,7 @@ def test_index_page_names_the_server_root(monkeypatch):
     # Streamlit's frontend otherwise probes <page>/_stcore/health first, gets a 404 and retries at
     # the root after a back-off: dashboard.serve makes index.html say where the root is.
     import asyncio
+    import concurrent.futures
 
     from starlette.responses import FileResponse
 
@@ -577,7 +578,9 @@ def test_index_page_names_the_server_root(monkeypatch):
 
     def get(path):
         scope = {"type": "http", "method": "GET", "path": "/" + path, "headers": [], "root_path": ""}
-        return asyncio.run(handler.get_response(path, scope))
+        # in a thread of its own: another test may have left an event loop running in this one
+        with concurrent.futures.ThreadPoolExecutor(1) as pool:
+            return pool.submit(lambda: asyncio.run(handler.get_response(path, scope))).result()
 
     for path in ("", "unit"):
         body = get(path).body.decode("utf-8")
