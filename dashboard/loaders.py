@@ -36,6 +36,10 @@ from pipeline.settings import Settings, load_settings
 
 DB_ENV = "BREATHFLEET_DB"
 SETTINGS_ENV = "BREATHFLEET_SETTINGS"
+# Rows the service queue lists: the top of the ranking is what a coordinator acts on, and the
+# whole list of a 5,000-unit fleet (about 2 MB with its reasons) took the browser longer to draw
+# than the rest of the page. Filters narrow the list; the CSV download holds every row.
+QUEUE_LISTED_ROWS = 500
 MAX_POINTS = 3000  # the most rows any chart ships to the browser
 QUERY_TTL_S = 3600  # a cached query result is dropped after this many seconds
 # Defaults of page controls, shared with dashboard.warm (which runs these views' queries at start).

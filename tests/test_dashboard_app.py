@@ -161,6 +161,22 @@ def test_queue_filters_change_the_table(monkeypatch, fleet_db):
     assert set(both["technology"]) == {"infrared"} and len(both) < len(filtered)
 
 
+def test_queue_lists_the_top_of_the_ranking(monkeypatch, fleet_db):
+    # Beyond QUEUE_LISTED_ROWS the table lists the first rows in rank order and says so; a
+    # selected row still opens that row's unit.
+    from dashboard import loaders
+    monkeypatch.setattr(loaders, "QUEUE_LISTED_ROWS", 5)
+    at = run_page(monkeypatch, fleet_db, "queue")
+    listed = at.dataframe[0].value
+    assert list(listed["rank"]) == [1, 2, 3, 4, 5]
+    assert any("24 of 24 units match the filters; the first 5 in rank order are listed" in c.value
+               for c in at.caption)
+    at.session_state["queue_table"] = {"selection": {"rows": [4], "columns": []}}
+    at.run()
+    assert at.title[0].value == "Unit"
+    assert f"**{listed['instrument_id'].iloc[4]}**" in at.markdown[0].value
+
+
 def test_queue_opens_the_chosen_unit(monkeypatch, fleet_db):
     at = run_page(monkeypatch, fleet_db, "queue")
     at.selectbox(key="queue_open_unit").select("TX1005").run()

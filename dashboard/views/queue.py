@@ -39,7 +39,7 @@ if picked:
     queue = loaders.load("dashboard_queue")
     if queue is not None:
         rows = _filtered(queue, {name: st.session_state.get(f"queue_{name}") or [] for name in FILTERS})
-        if picked[0] < len(rows):
+        if picked[0] < min(len(rows), loaders.QUEUE_LISTED_ROWS):
             st.switch_page("views/unit.py", query_params={"unit": str(rows.iloc[picked[0]]["instrument_id"])})
 
 frame.header("Service queue", "Which units to visit first, and why?")
@@ -57,11 +57,14 @@ for col, (name, label) in zip(cols, FILTERS.items()):
 shown = _filtered(queue, filters)
 
 table = shown[["rank", "instrument_id", "region", "site_id", "technology", "p_breach", "rank_low",
-               "rank_high", "reasons"]]
+               "rank_high", "reasons"]].head(loaders.QUEUE_LISTED_ROWS)
 
 computed = pd.Timestamp(queue["computed_at"].max())
-st.caption(f"Queue computed at {computed:%Y-%m-%d %H:%M} UTC · {len(shown):,} of {len(queue):,} units shown. "
-           "Select a row to open the unit.")
+listed = (f"{len(shown):,} of {len(queue):,} units match the filters" if len(shown) > len(table)
+          else f"{len(shown):,} of {len(queue):,} units shown")
+if len(shown) > len(table):
+    listed += f"; the first {len(table):,} in rank order are listed (filter to narrow, or download the CSV for all)"
+st.caption(f"Queue computed at {computed:%Y-%m-%d %H:%M} UTC · {listed}. Select a row to open the unit.")
 event = st.dataframe(
     table, hide_index=True, width="stretch", on_select="rerun", selection_mode="single-row",
     key="queue_table",
