@@ -44,6 +44,10 @@ MAX_POINTS = 3000  # the most rows any chart ships to the browser
 QUERY_TTL_S = 3600  # a cached query result is dropped after this many seconds
 # Defaults of page controls, shared with dashboard.warm (which runs these views' queries at start).
 FLEET_SIGNAL_DAYS = 7  # fleet overview: signals of the last days of data
+# Signals the fleet overview lists (fleet-significant first, then the newest): a glance, not the
+# whole list; a week of a 5,000-unit fleet holds thousands, and a 500-row grid was the heaviest
+# part of the page for the browser. The service queue ranks every unit.
+FLEET_SIGNALS_LISTED = 100
 FUNNEL_DEFAULT_DAYS = 90  # comparison: the funnel's window
 FUNNEL_DEFAULT_OVERDISPERSED = True  # comparison: limits allow for unit-to-unit spread
 UNIT_WINDOWS = {"90 days": 90, "180 days": 180, "1 year": 365, "All": None}  # unit: "Time shown"

@@ -48,7 +48,8 @@ logging.getLogger("streamlit.runtime.scriptrunner_utils.script_run_context").add
 def _steps() -> list[tuple[str, Callable[[], object]]]:
     def fleet():
         states = loaders.unit_states(signal_days=loaders.FLEET_SIGNAL_DAYS)
-        loaders.load("dashboard_signals_recent", days=loaders.FLEET_SIGNAL_DAYS)
+        loaders.load("dashboard_signals_recent", days=loaders.FLEET_SIGNAL_DAYS, listed=loaders.FLEET_SIGNALS_LISTED,
+                     region=None)
         trend = loaders.load("dashboard_fleet_trend")
         if states is not None and not states.empty:
             figures.vega_lite_spec(figures.state_by_region(loaders.state_counts(states, ["region"])))

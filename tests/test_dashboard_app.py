@@ -148,6 +148,30 @@ def test_fleet_counts_and_region_filter(monkeypatch, fleet_db):
     assert "p10_pct" in fields(trend)
 
 
+def test_fleet_lists_the_most_pressing_signals(monkeypatch, fleet_db):
+    # Beyond FLEET_SIGNALS_LISTED the overview lists the fleet-significant signals first, then the
+    # newest, and says how many the window holds; the region control narrows list and count.
+    from dashboard import loaders
+    monkeypatch.setattr(loaders, "FLEET_SIGNALS_LISTED", 2)
+    at = run_page(monkeypatch, fleet_db, "fleet")
+
+    def listed(page: AppTest) -> pd.DataFrame:
+        return next(t for t in html_tables(page) if {"instrument_id", "chart", "fleet_significant"} <= set(t.columns))
+
+    signals = listed(at)
+    assert len(signals) == 2
+    significant = signals["fleet_significant"].tolist()
+    assert significant == sorted(significant, key=lambda v: v != "True")  # fleet-significant first
+    within = signals[signals["fleet_significant"] == significant[-1]]["measured_at"].tolist()
+    assert within == sorted(within, reverse=True)  # then the newest
+    note = next(c.value for c in at.caption if "most pressing are listed" in c.value)
+    total = int(note.split(" signals")[0].replace(",", ""))
+    assert total >= 3  # the fixture's three recent EWMA signals at least
+    region = signals["region"].iloc[0]
+    at.selectbox(key="fleet_region").select(region).run()
+    assert set(listed(at)["region"]) == {region}
+
+
 def test_queue_filters_change_the_table(monkeypatch, fleet_db):
     at = run_page(monkeypatch, fleet_db, "queue")
     full = at.dataframe[0].value
@@ -159,6 +183,22 @@ def test_queue_filters_change_the_table(monkeypatch, fleet_db):
     at.multiselect(key="queue_technology").select("infrared").run()
     both = at.dataframe[0].value
     assert set(both["technology"]) == {"infrared"} and len(both) < len(filtered)
+
+
+def test_queue_site_filter_lists_the_sites_of_the_chosen_regions(monkeypatch, fleet_db):
+    at = run_page(monkeypatch, fleet_db, "queue")
+    site = at.multiselect(key="queue_site_id")
+    assert site.disabled and site.options == []  # no region chosen yet
+    at.multiselect(key="queue_region").select("Coastal Plain").run()
+    in_region = at.dataframe[0].value
+    site = at.multiselect(key="queue_site_id")
+    assert not site.disabled and set(site.options) == set(in_region["site_id"].astype(str))
+    one = sorted(site.options)[0]
+    site.select(one).run()
+    assert set(at.dataframe[0].value["site_id"].astype(str)) == {one}
+    # Without a region the site choice no longer applies: the whole queue is listed again.
+    at.multiselect(key="queue_region").unselect("Coastal Plain").run()
+    assert not at.exception and len(at.dataframe[0].value) == 24
 
 
 def test_queue_lists_the_top_of_the_ranking(monkeypatch, fleet_db):

@@ -19,11 +19,25 @@ def _reasons(value) -> str:
 FILTERS = {"region": "Region", "technology": "Technology", "site_id": "Site"}
 
 
+def _chosen() -> dict[str, list[str]]:
+    """The filters in force. The site box lists the sites of the chosen regions (a fleet of
+    thousands of units has about two thousand sites, too many for one list, and each option is
+    work for the browser), so a site choice counts only while a region is chosen."""
+    chosen = {name: list(st.session_state.get(f"queue_{name}") or []) for name in FILTERS}
+    if not chosen["region"]:
+        chosen["site_id"] = []
+    return chosen
+
+
 def _filtered(queue: pd.DataFrame, chosen: dict[str, list[str]]) -> pd.DataFrame:
     for name, values in chosen.items():
         if values:
             queue = queue[queue[name].astype(str).isin(values)]
     return queue
+
+
+def _options(queue: pd.DataFrame, name: str) -> list[str]:
+    return sorted(queue[name].dropna().astype(str).unique())
 
 
 # A click that opens a unit (the button, or a row of the table) is handled first, before the
@@ -38,7 +52,7 @@ except (KeyError, TypeError):
 if picked:
     queue = loaders.load("dashboard_queue")
     if queue is not None:
-        rows = _filtered(queue, {name: st.session_state.get(f"queue_{name}") or [] for name in FILTERS})
+        rows = _filtered(queue, _chosen())
         if picked[0] < min(len(rows), loaders.QUEUE_LISTED_ROWS):
             st.switch_page("views/unit.py", query_params={"unit": str(rows.iloc[picked[0]]["instrument_id"])})
 
@@ -50,11 +64,12 @@ if frame.missing(queue):
 
 queue = queue.assign(reasons=queue["reasons"].map(_reasons))
 cols = st.columns(3)
-filters = {}
-for col, (name, label) in zip(cols, FILTERS.items()):
-    options = sorted(queue[name].dropna().astype(str).unique())
-    filters[name] = col.multiselect(label, options, key=f"queue_{name}")
-shown = _filtered(queue, filters)
+regions = cols[0].multiselect(FILTERS["region"], _options(queue, "region"), key="queue_region")
+cols[1].multiselect(FILTERS["technology"], _options(queue, "technology"), key="queue_technology")
+in_regions = _filtered(queue, {"region": regions})
+cols[2].multiselect(FILTERS["site_id"], _options(in_regions, "site_id") if regions else [], key="queue_site_id",
+                    disabled=not regions, placeholder=None if regions else "Choose a region first")
+shown = _filtered(queue, _chosen())
 
 table = shown[["rank", "instrument_id", "region", "site_id", "technology", "p_breach", "rank_low",
                "rank_high", "reasons"]].head(loaders.QUEUE_LISTED_ROWS)
@@ -80,7 +95,7 @@ if rows:
 
 left, right = st.columns([3, 1])
 if not shown.empty:
-    chosen = left.selectbox("Open a unit", shown["instrument_id"].tolist(), key="queue_open_unit")
+    chosen = left.selectbox("Open a unit (of those listed)", table["instrument_id"].tolist(), key="queue_open_unit")
     warm.prefetch_unit(chosen)  # its page's queries run in the background while the queue is read
     if right.button("Open unit page", key="queue_open_button"):
         st.switch_page("views/unit.py", query_params={"unit": str(chosen)})
