@@ -40,7 +40,15 @@ SETTINGS_ENV = "BREATHFLEET_SETTINGS"
 # whole list of a 5,000-unit fleet (about 2 MB with its reasons) took the browser longer to draw
 # than the rest of the page. Filters narrow the list; the CSV download holds every row.
 QUEUE_LISTED_ROWS = 500
+# Units the lots page lists for one lot (most checks on the lot first): a widely used lot has
+# thousands of users, and a list and a unit box of thousands are work for the browser.
+LOT_UNITS_LISTED = 200
 MAX_POINTS = 3000  # the most rows any chart ships to the browser
+# The funnel draws the units farthest from the fleet mean: Vega's work grows with the points
+# (3,000 shaped points were about half a second of the page's first render), and the units
+# inside the limits beyond these add no decision. The table lists the farthest outside units.
+FUNNEL_POINTS = 1500
+OUTSIDE_LISTED = 100
 QUERY_TTL_S = 3600  # a cached query result is dropped after this many seconds
 # Defaults of page controls, shared with dashboard.warm (which runs these views' queries at start).
 FLEET_SIGNAL_DAYS = 7  # fleet overview: signals of the last days of data

@@ -67,7 +67,7 @@ def _steps() -> list[tuple[str, Callable[[], object]]]:
             return
         level = levels["level"].tolist()[0]  # a Python float, as the selectbox returns (the cache key)
         args = {"level": level, "days": loaders.FUNNEL_DEFAULT_DAYS, "overdispersed": loaders.FUNNEL_DEFAULT_OVERDISPERSED}
-        units = loaders.load("dashboard_funnel_units", max_points=loaders.MAX_POINTS, **args)
+        units = loaders.load("dashboard_funnel_units", max_points=loaders.FUNNEL_POINTS, **args)
         limits = loaders.load("dashboard_funnel_limits", **args)
         if units is not None and limits is not None and not units.empty and not limits.empty:
             figures.vega_lite_spec(figures.funnel_chart(units, limits))
@@ -80,7 +80,7 @@ def _steps() -> list[tuple[str, Callable[[], object]]]:
         if effects is not None and not effects.empty:
             figures.vega_lite_spec(figures.lot_effects_chart(effects))
         if usage is not None and not usage.empty:
-            loaders.load("dashboard_lot_units", lot_id=usage["lot_id"].tolist()[0])
+            loaders.load("dashboard_lot_units", lot_id=usage["lot_id"].tolist()[0], listed=loaders.LOT_UNITS_LISTED)
 
     def data_quality():
         loaders.load("dashboard_ingest_ledger")

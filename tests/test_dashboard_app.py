@@ -272,6 +272,23 @@ def test_comparison_funnel_has_limits_and_every_unit(monkeypatch, fleet_db):
     assert (widths[:-1] >= widths[1:]).all()  # the funnel narrows as n grows
 
 
+def test_comparison_lists_the_farthest_units_outside(monkeypatch, fleet_db):
+    # Beyond OUTSIDE_LISTED the table lists the units farthest from the mean, the CSV holds all.
+    from dashboard import loaders
+    monkeypatch.setattr(loaders, "OUTSIDE_LISTED", 3)
+    at = run_page(monkeypatch, fleet_db, "comparison")
+    at.toggle(key="cmp_overdispersed").set_value(False).run()  # binomial-style limits: many units outside
+    heading = next(s.value for s in at.subheader if s.value.startswith("Units outside"))
+    n_outside = int(heading.split("(")[1].rstrip(")"))
+    assert n_outside > 3
+    listed = html_tables(at)[-1]
+    z = listed["z"].astype(float).abs().tolist()
+    assert len(listed) == 3 and z == sorted(z, reverse=True) and min(z) > 1.959964
+    assert any(f"The 3 farthest from the fleet mean are listed; the CSV holds all {n_outside}" in c.value
+               for c in at.caption)
+    assert at.get("download_button")  # the whole list, as CSV
+
+
 def test_lots_page_shows_verdicts_and_leads_to_units(monkeypatch, fleet_db):
     at = run_page(monkeypatch, fleet_db, "lots")
     effects = chart_titled(at, "Lot effects")
@@ -282,8 +299,23 @@ def test_lots_page_shows_verdicts_and_leads_to_units(monkeypatch, fleet_db):
     at.selectbox(key="lots_pick").select("WB-B1").run()
     users = html_tables(at)[-1]
     assert set(users["instrument_id"]) == {"TX1000", "TX1004", "TX1008", "TX1012", "TX1016", "TX1020"}
+    assert any("6 units used lot WB-B1. Open one:" in c.value for c in at.caption)
     at.button(key="lots_open_unit").click().run()
     assert at.title[0].value == "Unit"
+
+
+def test_lots_page_lists_the_main_users_of_a_lot(monkeypatch, fleet_db):
+    # Beyond LOT_UNITS_LISTED the page lists the units with the most checks on the lot and says so.
+    from dashboard import loaders
+    monkeypatch.setattr(loaders, "LOT_UNITS_LISTED", 4)
+    at = run_page(monkeypatch, fleet_db, "lots")
+    at.selectbox(key="lots_pick").select("WB-B1").run()
+    users = html_tables(at)[-1]
+    assert len(users) == 4
+    counts = users["n_checks"].astype(int).tolist()
+    assert counts == sorted(counts, reverse=True)
+    assert any("6 units used lot WB-B1; the 4 with the most checks on it are listed" in c.value for c in at.caption)
+    assert at.selectbox(key="lots_unit").options == users["instrument_id"].tolist()
 
 
 def test_data_quality_page(monkeypatch, fleet_db):

@@ -23,7 +23,7 @@ days = c2.select_slider("Window (days of data)", list(FUNNEL_WINDOW_DAYS), value
 overdispersed = c3.toggle("Allow for unit-to-unit spread", value=loaders.FUNNEL_DEFAULT_OVERDISPERSED, key="cmp_overdispersed",
                           help="Adds the between-unit variance beyond chance (tau²) to the limits, "
                                "as Spiegelhalter (2005) section 6.2 advises when most units fall outside.")
-units = loaders.load("dashboard_funnel_units", level=level, days=days, max_points=loaders.MAX_POINTS,
+units = loaders.load("dashboard_funnel_units", level=level, days=days, max_points=loaders.FUNNEL_POINTS,
                      overdispersed=overdispersed)
 limits = loaders.load("dashboard_funnel_limits", level=level, days=days, overdispersed=overdispersed)
 if frame.missing(units) or frame.missing(limits):
@@ -39,6 +39,11 @@ note = (f"{n_units:,} units; limits are the fleet mean ± 1.96 and ± 3.09 stand
 if n_units > len(units):
     note += f" The {len(units):,} most extreme units are drawn; the others lie closer to the mean."
 st.caption(note)
-outside = units[units["z"].abs() > 1.959964]
-st.subheader(f"Units outside the 95 % limits ({len(outside):,})")
-frame.table(outside)
+outside = units[units["z"].abs() > 1.959964]  # units come most extreme first
+at_least = "at least " if n_units > len(units) and len(outside) == len(units) else ""
+st.subheader(f"Units outside the 95 % limits ({at_least}{len(outside):,})")
+if len(outside) > loaders.OUTSIDE_LISTED:
+    st.caption(f"The {loaders.OUTSIDE_LISTED:,} farthest from the fleet mean are listed; the CSV holds all {len(outside):,}.")
+    st.download_button("Download the units outside the limits as CSV", outside.to_csv(index=False).encode("utf-8"),
+                       file_name=f"outside-limits-{level:.3f}-{days}d.csv", mime="text/csv", key="cmp_outside_csv")
+frame.table(outside.head(loaders.OUTSIDE_LISTED))

@@ -40,11 +40,14 @@ if not frame.missing(diagnostics):
 
 st.subheader("Units that used a lot")
 lot_id = st.selectbox("Lot", usage["lot_id"].tolist(), key="lots_pick")
-users = loaders.load("dashboard_lot_units", lot_id=lot_id)
+users = loaders.load("dashboard_lot_units", lot_id=lot_id, listed=loaders.LOT_UNITS_LISTED)
 if frame.missing(users):
     st.write("No stored check used this lot.")
 else:
-    st.caption(f"{len(users):,} units used lot {lot_id}. Open one:")
+    n_users = int(users["n_users"].iloc[0])
+    users = users.drop(columns="n_users")
+    listed = "" if n_users == len(users) else f"; the {len(users):,} with the most checks on it are listed"
+    st.caption(f"{n_users:,} units used lot {lot_id}{listed}. Open one:")
     left, right = st.columns([3, 1])
     chosen = left.selectbox("Unit", users["instrument_id"].tolist(), key="lots_unit")
     if right.button("Open unit page", key="lots_open_unit"):
