@@ -226,6 +226,19 @@ def test_queue_opens_the_chosen_unit(monkeypatch, fleet_db):
     assert "**TX1005**" in at.markdown[0].value
 
 
+def test_unit_is_picked_within_its_region(monkeypatch, fleet_db):
+    at = run_page(monkeypatch, fleet_db, "unit", {"unit": "TX1005"})
+    region = at.selectbox(key="unit_region_TX1005")
+    units = at.selectbox(key=f"unit_pick_TX1005_{region.value}")
+    assert units.value == "TX1005" and len(units.options) == 8  # 24 units over 3 regions
+    other = next(r for r in region.options if r != region.value)
+    region.select(other).run()
+    first = at.selectbox(key=f"unit_pick_TX1005_{other}").options[0]
+    assert first != "TX1005" and f"**{first}**" in at.markdown[0].value and f"region {other}" in at.markdown[0].value
+    qp = at.query_params["unit"]
+    assert (qp[0] if isinstance(qp, list) else qp) == first
+
+
 def test_unit_page_charts_carry_limits_events_and_signals(monkeypatch, fleet_db):
     at = run_page(monkeypatch, fleet_db, "unit", {"unit": "TX1000"})
     assert not at.exception

@@ -9,6 +9,7 @@ from dashboard import figures, frame, library, loaders
 WINDOWS = loaders.UNIT_WINDOWS
 DEFAULT_WINDOW = loaders.UNIT_DEFAULT_WINDOW
 CHARTS = ["Individuals / moving range", "CUSUM", "EWMA", "Relative error"]
+NO_REGION = "(no region)"
 
 frame.header("Unit", "Is this unit drifting, since when, and is it the unit or its lot?")
 units = loaders.load("dashboard_unit_list")
@@ -16,10 +17,19 @@ if frame.missing(units):
     frame.not_computed("Instruments", "Ingest the instruments reference file first.")
     st.stop()
 
-ids = units["instrument_id"].tolist()
+# The unit is picked within a region: one box of every unit of a fleet of thousands is long to
+# scroll and each option is work for the browser on every unit opened. Keys carry the unit the
+# address names, so that the boxes follow a unit opened from another page.
 wanted = st.query_params.get("unit")
-index = ids.index(wanted) if wanted in ids else 0
-unit_id = st.selectbox("Unit", ids, index=index, key=f"unit_pick_{wanted}")
+regions = units["region"].fillna(NO_REGION)
+current = wanted if wanted in set(units["instrument_id"]) else units["instrument_id"].iloc[0]
+region_names = sorted(regions.unique())
+home = regions[units["instrument_id"] == current].iloc[0]
+pick_region, pick_unit = st.columns([1, 2])
+region = pick_region.selectbox("Region", region_names, index=region_names.index(home), key=f"unit_region_{wanted}")
+ids = units.loc[regions == region, "instrument_id"].tolist()
+unit_id = pick_unit.selectbox(f"Unit ({len(ids):,} in the region)", ids,
+                              index=ids.index(current) if current in ids else 0, key=f"unit_pick_{wanted}_{region}")
 if unit_id != wanted:
     st.query_params["unit"] = unit_id
 info = units[units["instrument_id"] == unit_id].iloc[0]
