@@ -239,6 +239,19 @@ def test_unit_is_picked_within_its_region(monkeypatch, fleet_db):
     assert (qp[0] if isinstance(qp, list) else qp) == first
 
 
+def test_unit_record_period_by_name_or_dates(monkeypatch, fleet_db):
+    at = run_page(monkeypatch, fleet_db, "unit", {"unit": "TX1005"})
+    assert not at.date_input  # no date boxes until "Chosen dates"
+    whole = next(c.value for c in at.caption if c.value.startswith("From "))
+    at.radio(key="record_period").set_value("Last 90 days").run()
+    recent = next(c.value for c in at.caption if c.value.startswith("From "))
+    start, end = (pd.Timestamp(d) for d in recent.split()[1::2])
+    assert recent.endswith(whole.split()[-1]) and (end - start).days == 89  # 90 days, both ends counted
+    at.radio(key="record_period").set_value("Chosen dates").run()
+    assert [d.label for d in at.date_input] == ["From", "To"]
+    assert str(at.date_input[0].value) == whole.split()[1] and str(at.date_input[1].value) == whole.split()[-1]
+
+
 def test_unit_page_charts_carry_limits_events_and_signals(monkeypatch, fleet_db):
     at = run_page(monkeypatch, fleet_db, "unit", {"unit": "TX1000"})
     assert not at.exception

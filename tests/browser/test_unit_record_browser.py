@@ -56,7 +56,10 @@ def record(server, browser):
         wait_for_page(page, "Unit")
         page.wait_for_url("**/unit?unit=*", timeout=30_000)   # the page writes the unit it shows into the URL
         unit = page.url.split("unit=")[1]
+        # the period is chosen by name; "Chosen dates" shows the date boxes, filled with the whole record
+        page.get_by_text("Chosen dates", exact=True).click()
         dates = page.locator("[data-testid='stDateInput']")
+        dates.first.wait_for(timeout=30_000)
         start = _iso(dates.filter(has_text="From").locator("input").input_value())
         end = _iso(dates.filter(has_text="To").locator("input").input_value())
         page.get_by_role("button", name="Prepare the instrument record").click()
