@@ -21,6 +21,7 @@ def header(title: str, question: str) -> dict | None:
     """
     st.title(title)
     st.caption(question)
+    st.html(TABLE_STYLE)  # once per page: a <style> in each table cost the browser a restyle per table
     if loaders.database_path() is None:
         st.info("No database is configured. Start the dashboard with `breathfleet dashboard --db FILE`.")
         footer(None)
@@ -107,12 +108,13 @@ def table(df: pd.DataFrame, static_rows: int = STATIC_TABLE_ROWS) -> None:
     Each st.dataframe grid costs the browser a lazily loaded component, a canvas, column
     measuring and scroll handling (about 0.1 s apiece on the unit page, which shows several);
     a static table of a few dozen rows costs a fraction of that, and a screen reader reads it
-    as a table. Cell text is escaped by pandas and sanitised again by st.html.
+    as a table. Cell text is escaped by pandas and sanitised again by st.html. The tables' style
+    (TABLE_STYLE) is written once per page, by header().
     """
     if len(df) <= static_rows:
         html = df.astype(object).where(df.notna(), "").to_html(index=False, border=0, classes="bf-table")
         # a long or wide table scrolls in its own box, as the grid would, instead of stretching the page
-        st.html(f'{TABLE_STYLE}<div class="bf-scroll">{html}</div>')
+        st.html(f'<div class="bf-scroll">{html}</div>')
     else:
         st.dataframe(df, hide_index=True, width="stretch")
 

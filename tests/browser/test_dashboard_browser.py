@@ -42,3 +42,14 @@ def test_queue_click_opens_the_unit_page(server, page):
     # charts are drawn on a canvas; Vega names it by the chart's description (its title)
     page.locator(".vega-embed[aria-label^='CUSUM']").first.wait_for(timeout=30_000)
     page.screenshot(path=str(ARTIFACTS / "queue-to-unit.png"), full_page=True)
+
+
+def test_static_tables_carry_the_page_style(server, page):
+    # frame.header writes the tables' style once per page; every static table must still get it
+    # (the header cells stick to the top of a scrolling table: CSS position sticky).
+    page.goto(f"{server}/lots")
+    wait_for_page(page, "Lots")
+    header = page.locator("table.bf-table th").first
+    header.wait_for(timeout=30_000)
+    assert header.evaluate("th => getComputedStyle(th).position") == "sticky"
+    assert page.locator("div.bf-scroll").count() >= 1
