@@ -22,11 +22,13 @@ the first render) and are not comparable one to one.
 
 The drill-down picks a unit in the queue's "Open a unit" box, waits until the queue has settled
 (SETTLE_S) and clicks "Open unit page": meanwhile the queue prefetches that unit's first view
-(dashboard.warm.prefetch_unit), as it does for a user who picks a unit and then clicks, so the
+(dashboard.warm.prefetch_units), as it does for a user who picks a unit and then clicks, so the
 drill-down measures the page switch and drawing with the unit's queries cached.
-drilldown_row_click clicks a row of the queue's table instead (rows 6 to 8, units neither warmed
-nor prefetched, so their queries run during the switch). unit_by_link opens yet another unit by its
-address (a new session: the frontend loads again and the unit's queries run during the render).
+drilldown_row_click clicks a row of the queue's table instead (rows 6 to 8, among the first rows
+the queue prefetches, loaders.QUEUE_PREFETCHED; Streamlit's table sends a selection after a
+0.15 s debounce, which this figure includes). unit_by_link opens yet another unit by its address,
+neither warmed nor prefetched (a new session: the frontend loads again and the unit's queries
+run during the render).
 Targets (issue 7): first render < 2 s, drill-down < 1 s (both drill-downs).
 
 The database is the benchmark fleet as a program runs it: a copy of the ingested fleet

@@ -11,7 +11,8 @@ queue, the unit list and the first unit's view (the unit page opened without a u
 first of the list), the funnel at the first level and default window, the lots page (its first
 lot's units), the data-quality page (its first quarantine reason's sample). Other units'
 queries are not warmed at start: they run when a unit is opened, or earlier when the service
-queue prefetches the unit its "Open a unit" box holds (`prefetch_unit`). One Altair spec of
+queue prefetches the unit its "Open a unit" box holds and the units at the top of its table
+(`prefetch_units`). One Altair spec of
 each fleet chart is built too (the first spec a process builds pays for Altair's lazy set-up).
 
 Nothing here is needed for correctness: a step that fails is skipped (the page then runs the
@@ -135,26 +136,29 @@ _prefetched: dict[str, loaders.DataToken] = {}
 _prefetch_lock = threading.Lock()
 
 
-def prefetch_unit(unit_id: str | None) -> threading.Thread | None:
-    """Fetch the unit page's first view of `unit_id` in a daemon thread, once per unit and
-    snapshot: the service queue calls it for the unit its "Open a unit" box holds, so that the
-    unit page, when opened, finds its queries cached. Returns the thread, or None when there was
-    nothing to do."""
+def prefetch_units(unit_ids: list[str]) -> threading.Thread | None:
+    """Fetch the unit page's first view of each unit, in order, in one daemon thread; each unit
+    once per snapshot. The service queue calls it for the unit its "Open a unit" box holds and
+    the units at the top of its table (those a coordinator opens first), so that the unit page,
+    when opened, finds its queries cached. Returns the thread, or None when there was nothing
+    to do."""
     token = loaders.data_token()
-    if unit_id is None or token is None:
+    if token is None:
         return None
     with _prefetch_lock:
-        if _prefetched.get(unit_id) == token:
-            return None
-        if len(_prefetched) > 256:
+        todo = [u for u in dict.fromkeys(unit_ids) if u is not None and _prefetched.get(u) != token]
+        if len(_prefetched) + len(todo) > 256:
             _prefetched.clear()
-        _prefetched[unit_id] = token
+        _prefetched.update((u, token) for u in todo)
+    if not todo:
+        return None
 
     def run() -> None:
-        try:
-            unit_default_view(unit_id)
-        except Exception as exc:  # noqa: BLE001 - a prefetch is optional; the page reports problems itself
-            _LOG.info("dashboard prefetch of unit %s skipped: %s", unit_id, exc)
+        for unit_id in todo:
+            try:
+                unit_default_view(unit_id)
+            except Exception as exc:  # noqa: BLE001 - a prefetch is optional; the page reports problems itself
+                _LOG.info("dashboard prefetch of unit %s skipped: %s", unit_id, exc)
 
     thread = threading.Thread(target=run, name=f"{THREAD_PREFIX}prefetch", daemon=True)
     thread.start()

@@ -628,7 +628,7 @@ def test_warm_up_fills_every_fleet_wide_query_of_the_pages(monkeypatch, tmp_path
         return query_cursor(self, token)
 
     monkeypatch.setattr(loaders.SnapshotReader, "cursor", counting_cursor)
-    monkeypatch.setattr(warm, "prefetch_unit", lambda unit: None)  # the queue's prefetch: its own test
+    monkeypatch.setattr(warm, "prefetch_units", lambda units: None)  # the queue's prefetch: its own test
     for page in ("fleet", "queue", "unit", "comparison", "lots", "data_quality", "digest"):
         at = run_page(monkeypatch, db, page)
         assert not at.exception, [e.value for e in at.exception]
@@ -703,25 +703,29 @@ def test_index_page_names_the_server_root(monkeypatch):
     assert isinstance(get("favicon.png"), FileResponse)
 
 
-def test_queue_prefetches_the_unit_its_open_box_holds(monkeypatch, tmp_path):
-    # The queue starts a background fetch of the chosen unit's first view; once it has run, the unit
-    # page of that unit runs no query on the snapshot (same parameters, same cache entries).
+def test_queue_prefetches_the_units_a_coordinator_opens_first(monkeypatch, tmp_path):
+    # The queue starts a background fetch of the first view of the unit its box holds, then of the
+    # units at the top of its table; once it has run, the unit page of any of them runs no query on
+    # the snapshot (same parameters, same cache entries).
     from dashboard import loaders, warm
-    db = build_fleet_db(tmp_path / "prefetch.duckdb", n_units=4, days=30)
+    db = build_fleet_db(tmp_path / "prefetch.duckdb", n_units=6, days=30)
     monkeypatch.setenv("BREATHFLEET_DB", str(db))
+    monkeypatch.setattr(loaders, "QUEUE_PREFETCHED", 3)
     warm.warm_caches()
     started = []
-    original = warm.prefetch_unit
-    monkeypatch.setattr(warm, "prefetch_unit", lambda unit: started.append((unit, original(unit))))
+    original = warm.prefetch_units
+    monkeypatch.setattr(warm, "prefetch_units", lambda units: started.append((units, original(units))))
     at = run_page(monkeypatch, db, "queue")
     assert not at.exception
-    unit, thread = started[-1]
-    assert unit == at.selectbox(key="queue_open_unit").value and thread is not None
+    units, thread = started[-1]
+    top = at.dataframe[0].value["instrument_id"].tolist()[:3]
+    assert units == [at.selectbox(key="queue_open_unit").value, *top] and thread is not None
     thread.join(timeout=60)
-    assert original(unit) is None  # once per unit and snapshot
+    assert original(units) is None  # once per unit and snapshot
     ran = []
     query_cursor = loaders.SnapshotReader.cursor
     monkeypatch.setattr(loaders.SnapshotReader, "cursor", lambda self, token: ran.append(1) or query_cursor(self, token))
-    at = run_page(monkeypatch, db, "unit", {"unit": unit})
-    assert not at.exception, [e.value for e in at.exception]
+    for unit in top:
+        at = run_page(monkeypatch, db, "unit", {"unit": unit})
+        assert not at.exception, [e.value for e in at.exception]
     assert ran == []

@@ -96,7 +96,9 @@ if rows:
 left, right = st.columns([3, 1])
 if not shown.empty:
     chosen = left.selectbox("Open a unit (of those listed)", table["instrument_id"].tolist(), key="queue_open_unit")
-    warm.prefetch_unit(chosen)  # its page's queries run in the background while the queue is read
+    # Their pages' queries run in the background while the queue is read: the chosen unit, then
+    # the top of the table (the rows in view), the units a coordinator opens first.
+    warm.prefetch_units([chosen, *table["instrument_id"].head(loaders.QUEUE_PREFETCHED)])
     if right.button("Open unit page", key="queue_open_button"):
         st.switch_page("views/unit.py", query_params={"unit": str(chosen)})
 st.download_button("Download the queue as CSV", shown.to_csv(index=False).encode("utf-8"),
