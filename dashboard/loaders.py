@@ -41,6 +41,7 @@ SETTINGS_ENV = "BREATHFLEET_SETTINGS"
 # than the rest of the page. Filters narrow the list; the CSV download holds every row.
 QUEUE_LISTED_ROWS = 500
 QUEUE_PREFETCHED = 10  # the queue prefetches the unit pages of its first rows (those in view)
+QUEUE_PREFETCH_DELAY_S = 1.0  # ... after this pause, once the browser has drawn the queue
 # Units the lots page lists for one lot (most checks on the lot first): a widely used lot has
 # thousands of users, and a list and a unit box of thousands are work for the browser.
 LOT_UNITS_LISTED = 200

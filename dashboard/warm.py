@@ -136,12 +136,12 @@ _prefetched: dict[str, loaders.DataToken] = {}
 _prefetch_lock = threading.Lock()
 
 
-def prefetch_units(unit_ids: list[str]) -> threading.Thread | None:
-    """Fetch the unit page's first view of each unit, in order, in one daemon thread; each unit
-    once per snapshot. The service queue calls it for the unit its "Open a unit" box holds and
-    the units at the top of its table (those a coordinator opens first), so that the unit page,
-    when opened, finds its queries cached. Returns the thread, or None when there was nothing
-    to do."""
+def prefetch_units(unit_ids: list[str], delay_s: float = 0.0) -> threading.Thread | None:
+    """Fetch the unit page's first view of each unit, in order, in one daemon thread that starts
+    after `delay_s` seconds; each unit once per snapshot. The service queue calls it for the unit
+    its "Open a unit" box holds and the units at the top of its table (those a coordinator opens
+    first), so that the unit page, when opened, finds its queries cached. Returns the thread, or
+    None when there was nothing to do."""
     token = loaders.data_token()
     if token is None:
         return None
@@ -154,6 +154,7 @@ def prefetch_units(unit_ids: list[str]) -> threading.Thread | None:
         return None
 
     def run() -> None:
+        time.sleep(delay_s)
         for unit_id in todo:
             try:
                 unit_default_view(unit_id)

@@ -628,7 +628,7 @@ def test_warm_up_fills_every_fleet_wide_query_of_the_pages(monkeypatch, tmp_path
         return query_cursor(self, token)
 
     monkeypatch.setattr(loaders.SnapshotReader, "cursor", counting_cursor)
-    monkeypatch.setattr(warm, "prefetch_units", lambda units: None)  # the queue's prefetch: its own test
+    monkeypatch.setattr(warm, "prefetch_units", lambda units, delay_s=0.0: None)  # the queue's prefetch: its own test
     for page in ("fleet", "queue", "unit", "comparison", "lots", "data_quality", "digest"):
         at = run_page(monkeypatch, db, page)
         assert not at.exception, [e.value for e in at.exception]
@@ -711,17 +711,21 @@ def test_queue_prefetches_the_units_a_coordinator_opens_first(monkeypatch, tmp_p
     db = build_fleet_db(tmp_path / "prefetch.duckdb", n_units=6, days=30)
     monkeypatch.setenv("BREATHFLEET_DB", str(db))
     monkeypatch.setattr(loaders, "QUEUE_PREFETCHED", 3)
+    monkeypatch.setattr(loaders, "QUEUE_PREFETCH_DELAY_S", 0.2)
     warm.warm_caches()
     started = []
     original = warm.prefetch_units
-    monkeypatch.setattr(warm, "prefetch_units", lambda units: started.append((units, original(units))))
+    monkeypatch.setattr(warm, "prefetch_units",
+                        lambda units, delay_s=0.0: started.append((units, delay_s, original(units, delay_s))))
     at = run_page(monkeypatch, db, "queue")
     assert not at.exception
-    units, thread = started[-1]
     top = at.dataframe[0].value["instrument_id"].tolist()[:3]
-    assert units == [at.selectbox(key="queue_open_unit").value, *top] and thread is not None
-    thread.join(timeout=60)
-    assert original(units) is None  # once per unit and snapshot
+    assert [(units, delay) for units, delay, _ in started] == [([at.selectbox(key="queue_open_unit").value], 0.0),
+                                                              (top, 0.2)]
+    for _, _, thread in started:
+        if thread is not None:  # None: nothing left to fetch (already fetched once for this snapshot)
+            thread.join(timeout=60)
+    assert original(top) is None  # once per unit and snapshot
     ran = []
     query_cursor = loaders.SnapshotReader.cursor
     monkeypatch.setattr(loaders.SnapshotReader, "cursor", lambda self, token: ran.append(1) or query_cursor(self, token))

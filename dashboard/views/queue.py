@@ -96,9 +96,12 @@ if rows:
 left, right = st.columns([3, 1])
 if not shown.empty:
     chosen = left.selectbox("Open a unit (of those listed)", table["instrument_id"].tolist(), key="queue_open_unit")
-    # Their pages' queries run in the background while the queue is read: the chosen unit, then
-    # the top of the table (the rows in view), the units a coordinator opens first.
-    warm.prefetch_units([chosen, *table["instrument_id"].head(loaders.QUEUE_PREFETCHED)])
+    # Their pages' queries run in the background while the queue is read: the chosen unit, and
+    # the top of the table (the rows in view, the units a coordinator opens first) once the
+    # browser has had time to draw the queue (it may share the server's cores).
+    warm.prefetch_units([chosen])
+    warm.prefetch_units(table["instrument_id"].head(loaders.QUEUE_PREFETCHED).tolist(),
+                        delay_s=loaders.QUEUE_PREFETCH_DELAY_S)
     if right.button("Open unit page", key="queue_open_button"):
         st.switch_page("views/unit.py", query_params={"unit": str(chosen)})
 st.download_button("Download the queue as CSV", shown.to_csv(index=False).encode("utf-8"),
