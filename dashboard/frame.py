@@ -119,8 +119,14 @@ def table(df: pd.DataFrame, static_rows: int = STATIC_TABLE_ROWS) -> None:
         st.dataframe(df, hide_index=True, width="stretch")
 
 
-def table_alternative(df: pd.DataFrame, label: str = "Same data as a table") -> None:
-    """A text alternative to a chart: its data as a table in an expander (static up to 500 rows:
-    a collapsed expander's static table costs no layout until it is opened)."""
-    with st.expander(label):
-        table(df, static_rows=500)
+def table_alternative(df: pd.DataFrame, label: str) -> None:
+    """A text alternative to a chart: its data as a table in an expander, drawn when opened.
+
+    The expander keeps its state (keyed on its label, which is unique across pages) and reruns
+    the page when opened or closed, so a closed one sends no table: the unit page's three cost
+    the browser about a quarter of a second on every unit opened, closed. Static up to 500 rows.
+    """
+    box = st.expander(label, key=f"table_alternative:{label}", on_change="rerun")
+    if box.open:
+        with box:
+            table(df, static_rows=500)

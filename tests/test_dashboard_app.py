@@ -252,6 +252,20 @@ def test_unit_record_period_by_name_or_dates(monkeypatch, fleet_db):
     assert str(at.date_input[0].value) == whole.split()[1] and str(at.date_input[1].value) == whole.split()[-1]
 
 
+def test_table_alternatives_are_drawn_when_opened(monkeypatch, fleet_db):
+    # A closed table alternative sends no table; opening it (its state, as the browser sets it)
+    # reruns the page with the table inside.
+    at = run_page(monkeypatch, fleet_db, "unit", {"unit": "TX1000"})
+    label = "Estimates per baseline period"
+    assert label in [e.label for e in at.expander]
+    closed = html_tables(at)
+    assert not any("bias_pct" in t.columns for t in closed)
+    at.session_state[f"table_alternative:{label}"] = True
+    at.run()
+    opened = [t for t in html_tables(at) if "bias_pct" in t.columns]
+    assert len(html_tables(at)) == len(closed) + 1 and len(opened) == 1 and len(opened[0]) >= 1
+
+
 def test_unit_page_charts_carry_limits_events_and_signals(monkeypatch, fleet_db):
     at = run_page(monkeypatch, fleet_db, "unit", {"unit": "TX1000"})
     assert not at.exception

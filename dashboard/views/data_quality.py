@@ -30,7 +30,7 @@ elif reasons.empty:
     st.write("No row has been quarantined.")
 else:
     frame.chart(figures.quarantine_chart(reasons), key="quarantine_reasons")
-    frame.table_alternative(reasons)
+    frame.table_alternative(reasons, "Quarantined rows by reason (table)")
     reason = st.selectbox("Sample rows for reason", reasons["reason"].tolist(), key="dq_reason")
     frame.table(loaders.load("dashboard_quarantine_sample", reason=reason))
 

@@ -63,4 +63,4 @@ if frame.missing(trend):
     frame.not_computed("Fleet trend", "No checks with an expected value yet.")
 else:
     frame.chart(figures.fleet_trend(trend, loaders.tolerance_pct()), key="fleet_trend")
-    frame.table_alternative(trend)
+    frame.table_alternative(trend, "Fleet relative error by week (table)")

@@ -53,3 +53,14 @@ def test_static_tables_carry_the_page_style(server, page):
     header.wait_for(timeout=30_000)
     assert header.evaluate("th => getComputedStyle(th).position") == "sticky"
     assert page.locator("div.bf-scroll").count() >= 1
+
+
+def test_a_table_alternative_opens_with_its_table(server, page):
+    # Table alternatives are drawn when opened (frame.table_alternative): the click reruns the page.
+    page.goto(f"{server}/")  # the default page lives at /
+    wait_for_page(page, "Fleet overview")
+    box = page.locator("[data-testid='stExpander']", has_text="Fleet relative error by week (table)")
+    assert box.locator("table.bf-table").count() == 0
+    box.locator("summary").click()
+    box.locator("table.bf-table").first.wait_for(timeout=30_000)
+    assert box.locator("table.bf-table tr").count() > 1
