@@ -45,6 +45,9 @@ QUEUE_PREFETCH_DELAY_S = 1.0  # ... after this pause, once the browser has drawn
 # Units the lots page lists for one lot (most checks on the lot first): a widely used lot has
 # thousands of users, and a list and a unit box of thousands are work for the browser.
 LOT_UNITS_LISTED = 200
+# Signals the unit page lists (the newest; all of them in a table opened on request): a unit high
+# in the queue has a hundred or more in its time window, and each row is work for the browser.
+UNIT_SIGNALS_LISTED = 20
 MAX_POINTS = 3000  # the most rows any chart ships to the browser
 # The funnel draws the units farthest from the fleet mean: Vega's work grows with the points
 # (3,000 shaped points were about half a second of the page's first render), and the units

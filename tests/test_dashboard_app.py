@@ -266,6 +266,25 @@ def test_table_alternatives_are_drawn_when_opened(monkeypatch, fleet_db):
     assert len(html_tables(at)) == len(closed) + 1 and len(opened) == 1 and len(opened[0]) >= 1
 
 
+def test_unit_lists_its_newest_signals(monkeypatch, fleet_db):
+    # Beyond UNIT_SIGNALS_LISTED the page lists the newest signals and offers all in a table.
+    from dashboard import loaders
+    monkeypatch.setattr(loaders, "UNIT_SIGNALS_LISTED", 1)
+    at = run_page(monkeypatch, fleet_db, "unit", {"unit": "TX1000"})
+    at.radio(key="unit_window").set_value("All").run()
+    note = next(c.value for c in at.caption if "signals of this unit" in c.value)
+    n = int(note.split()[0])
+    assert n >= 2 and note.endswith("; the 1 most recent are listed.")
+    listed = [t for t in html_tables(at) if "rule" in t.columns]
+    assert len(listed) == 1 and len(listed[0]) == 1
+    label = f"All {n} signals in the time shown (table)"
+    at.session_state[f"table_alternative:{label}"] = True
+    at.run()
+    tables = [t for t in html_tables(at) if "rule" in t.columns]
+    assert [len(t) for t in tables] == [1, n]
+    assert tables[0]["measured_at"].iloc[0] == max(tables[1]["measured_at"])  # the newest is listed
+
+
 def test_unit_page_charts_carry_limits_events_and_signals(monkeypatch, fleet_db):
     at = run_page(monkeypatch, fleet_db, "unit", {"unit": "TX1000"})
     assert not at.exception

@@ -106,8 +106,12 @@ if signals is None:
 elif signals.empty:
     st.write("No control-chart signals for this unit in the time shown.")
 else:
-    st.caption(f"{len(signals):,} signals of this unit (all levels) in the time shown.")
-    frame.table(signals)
+    listed = loaders.UNIT_SIGNALS_LISTED
+    more = f"; the {listed} most recent are listed" if len(signals) > listed else ""
+    st.caption(f"{len(signals):,} signals of this unit (all levels) in the time shown{more}.")
+    frame.table(signals.head(listed))
+    if len(signals) > listed:
+        frame.table_alternative(signals, f"All {len(signals):,} signals in the time shown (table)")
 
 st.subheader("Bias and drift (fleet model)")
 estimates = loaders.load("dashboard_unit_estimates", instrument_id=unit_id)
