@@ -108,7 +108,8 @@ elif signals.empty:
 else:
     listed = loaders.UNIT_SIGNALS_LISTED
     more = f"; the {listed} most recent are listed" if len(signals) > listed else ""
-    st.caption(f"{len(signals):,} signals of this unit (all levels) in the time shown{more}.")
+    st.caption(f"{len(signals):,} signal{'' if len(signals) == 1 else 's'} of this unit (all levels) "
+               f"in the time shown{more}.")
     frame.table(signals.head(listed))
     if len(signals) > listed:
         frame.table_alternative(signals, f"All {len(signals):,} signals in the time shown (table)")
