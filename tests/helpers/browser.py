@@ -52,10 +52,12 @@ def launch_browser(playwright):
 
 
 def wait_for_page(page, title: str, timeout: float = 30_000) -> None:
-    """Wait for the page's title and for Streamlit to finish running the script."""
+    """Wait for the page's title, for Streamlit to finish running the script and for its lazily
+    loaded elements to replace their loading skeletons."""
     page.get_by_role("heading", name=title, exact=True).first.wait_for(timeout=timeout)
     page.wait_for_function(
-        "() => !document.querySelector('[data-testid=\"stStatusWidget\"]')", timeout=timeout)
+        "() => !document.querySelector('[data-testid=\"stStatusWidget\"], [data-testid=\"stSkeleton\"]')",
+        timeout=timeout)
 
 
 def wait_for_charts(page, timeout: float = 30_000, at_least: int = 1) -> int:
