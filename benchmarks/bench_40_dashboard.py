@@ -195,9 +195,9 @@ def measure(db: Path, rounds: int = ROUNDS) -> dict[str, list[float]]:
                     t = time.perf_counter()
                     button.click()
                     record("drilldown_queue_to_unit_s", wait_rendered(page, "Unit", t))
-                # The other way into a unit: a click on a row of the queue's table (a unit
-                # neither warmed nor prefetched; the grid is a canvas, so the click goes to the
-                # row's position: header and rows are ROW_PX high, the row marker at the left edge).
+                # The other way into a unit: a click on a row of the queue's table (a row the
+                # queue prefetches, see the module docstring; the grid is a canvas, so the click goes
+                # to the row's position: header and rows are ROW_PX high, the row marker at the left edge).
                 page.goto(f"{base}/queue")
                 wait_rendered(page, "Service queue", time.perf_counter())
                 grid = page.locator("[data-testid='stDataFrame']").first.bounding_box()

@@ -42,17 +42,16 @@ counts = loaders.state_counts(shown, by).pivot_table(index=by, columns="state", 
 frame.table_alternative(counts, f"Units by {'region' if len(by) == 1 else 'site'} and state (table)")
 
 st.subheader(f"Signals in the last {DAYS} days of data")
-signals = loaders.load("dashboard_signals_recent", days=DAYS, listed=loaders.FLEET_SIGNALS_LISTED,
-                       region=None if region == "All regions" else region)
+one_region = None if region == "All regions" else region
+where = "" if one_region is None else f" in {one_region}"
+signals = loaders.load("dashboard_signals_recent", days=DAYS, listed=loaders.FLEET_SIGNALS_LISTED, region=one_region)
 if signals is None:
     frame.not_computed("Control-chart signals", "Run the chart analysis (`breathfleet analyse`).")
 elif signals.empty:
-    where = "" if region == "All regions" else f" in {region}"
     st.write(f"No control-chart signals{where} in the last {DAYS} days of data.")
 else:
     total = int(signals["n_in_window"].iloc[0])
     if total > len(signals):
-        where = "" if region == "All regions" else f" in {region}"
         st.caption(f"{total:,} signals{where} in the last {DAYS} days; the {len(signals):,} most pressing are listed "
                    "(fleet-significant first, then the newest). The service queue ranks every unit.")
     frame.table(signals.drop(columns="n_in_window"))

@@ -1,6 +1,8 @@
 """Unit: one instrument's control charts with its events and signals, the model's bias and
 drift, the forecast to tolerance, the uncertainty budget and its instrument record."""
 
+import datetime as dt
+
 import pandas as pd
 import streamlit as st
 
@@ -10,7 +12,8 @@ WINDOWS = loaders.UNIT_WINDOWS
 DEFAULT_WINDOW = loaders.UNIT_DEFAULT_WINDOW
 CHARTS = ["Individuals / moving range", "CUSUM", "EWMA", "Relative error"]
 NO_REGION = "(no region)"
-RECORD_PERIODS = {"Whole record": None, "Last 365 days": 365, "Last 90 days": 90, "Chosen dates": "dates"}
+RECORD_PERIODS = {"Whole record": None, "Last 365 days": 365, "Last 90 days": 90}  # days before the last check
+CHOSEN_DATES = "Chosen dates"
 
 frame.header("Unit", "Is this unit drifting, since when, and is it the unit or its lot?")
 units = loaders.load("dashboard_unit_list")
@@ -160,13 +163,13 @@ st.subheader("Instrument record")
 # sixth of the browser's work on every unit opened).
 first = pd.Timestamp(levels["first_check_at"].min()).date()
 last = pd.Timestamp(levels["last_check_at"].max()).date()
-period = st.radio("Period", list(RECORD_PERIODS), horizontal=True, key="record_period")
-if RECORD_PERIODS[period] == "dates":
+period = st.radio("Period", [*RECORD_PERIODS, CHOSEN_DATES], horizontal=True, key="record_period")
+if period == CHOSEN_DATES:
     start = st.date_input("From", value=first, key="record_start")
     end = st.date_input("To", value=last, key="record_end")
 else:
     days = RECORD_PERIODS[period]
-    start = first if days is None else max(first, last - pd.Timedelta(days=days - 1).to_pytimedelta())
+    start = first if days is None else max(first, last - dt.timedelta(days=days - 1))
     end = last
     st.caption(f"From {start:%Y-%m-%d} to {end:%Y-%m-%d}")
 if st.button("Prepare the instrument record", key="record_button"):
