@@ -6,10 +6,10 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from pipeline.charts.baselines import pooled_sigma
+from pipeline.charts.baselines import own_estimates, pooled_sigma
 from pipeline.charts.changepoint import cusum_run_length
 from pipeline.charts.ewma import ewma
-from pipeline.charts.grouping import Segments, group_starts, grouped_cummin, grouped_cumsum, key_codes
+from pipeline.charts.grouping import Segments, group_starts, grouped_cumsum, key_codes
 from pipeline.charts.individuals import moving_range
 from pipeline.charts.run_rules import RULES, apply_run_rules
 from pipeline.charts.short_run import quesenberry_q
@@ -31,11 +31,10 @@ def test_segments_and_grouped_sums_equal_loops():
     codes, starts, rng = random_groups()
     seg = Segments.from_starts(starts)
     x = rng.standard_normal(len(codes))
-    cs, cm = grouped_cumsum(x, starts, seg=seg), grouped_cummin(x, starts, seg=seg)
+    cs = grouped_cumsum(x, starts, seg=seg)
     for rows in per_group(codes):
-        # common practice: a cumulative sum and running minimum restart at each group
+        # common practice: a cumulative sum restarts at each group
         np.testing.assert_allclose(cs[rows], np.cumsum(x[rows]), atol=1e-12)
-        assert np.array_equal(cm[rows], np.minimum.accumulate(x[rows]))
         assert list(seg.pos[rows]) == list(range(len(rows))) and set(seg.first[rows]) == {rows[0]}
     y = x.copy()
     assert np.array_equal(grouped_cumsum(y, starts, seg=seg, overwrite=True), cs)
@@ -175,3 +174,23 @@ def test_pooled_sigma_equals_plain_groupby():
     # Montgomery 6.4: sigma = MR-bar / d2(2), d2(2) = 1.128 (ours computed)
     np.testing.assert_allclose(got["sigma"].loc[ref.index], ref["mean"] / 1.1283791671, rtol=1e-6)
     assert list(got["n_pairs"].loc[ref.index]) == list(ref["size"])
+
+
+def test_own_estimates_equal_loop_with_carried_positions():
+    codes, starts, rng = random_groups(n=4000, groups=90, seed=8)
+    x = rng.normal(0, 0.01, len(codes))
+    seg = Segments.from_starts(starts)
+    # Some groups continue a segment charted earlier: their check numbers start above 0.
+    offset = rng.choice([0, 0, 3, 25], codes.max() + 1)[codes]
+    pos = seg.pos + offset
+    est = own_estimates(x, starts, pos, 20, seg=seg).set_index("group")
+    expected = {}
+    for g, rows in enumerate(per_group(codes)):
+        first = rows[pos[rows] < 20]
+        if len(first) == 20 and pos[first[0]] == 0:
+            expected[g] = (x[first].mean(), np.abs(np.diff(x[first])).mean() / 1.1283791671, first[-1])
+    assert len(expected) > 10 and sorted(est.index) == sorted(expected)
+    for g, (center, sigma, row) in expected.items():
+        # Montgomery 6.4: phase I centre = mean and sigma = MR-bar / d2(2) of the segment's first 20 checks
+        assert abs(est.loc[g, "center"] - center) < 1e-15 and abs(est.loc[g, "sigma"] / sigma - 1) < 1e-9
+        assert est.loc[g, "row"] == row

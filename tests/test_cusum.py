@@ -49,3 +49,6 @@ def test_vectorised_equals_loop_on_random_groups():
         # common practice: the recursion C_i = max(0, C_{i-1} + z_i - k) (Page 1954)
         np.testing.assert_allclose(res.upper[m], up, atol=1e-9)
         np.testing.assert_allclose(res.lower[m], lo, atol=1e-9)
+        s = np.cumsum(z[m] - 0.5)
+        # Lindley's closed form of the recursion: C+_i = S_i - min(-C+_0, min_{j<=i} S_j)
+        np.testing.assert_allclose(res.upper[m], s - np.minimum(-2.5, np.minimum.accumulate(s)), atol=1e-9)

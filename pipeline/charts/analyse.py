@@ -294,7 +294,7 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
         baselines = b1
     # New state: last row of each group.
     last = seg_n.last_idx if len(zn) else np.empty(0, int)
-    add_sum = pd.Series(of_new(x)).groupby(gn).sum().to_numpy() if len(zn) else np.empty(0)
+    add_sum = np.add.reduceat(of_new(x), seg_n.start_idx) if len(zn) else np.empty(0)
     new_state = pd.DataFrame({
         "instrument_id": points["instrument_id"].array[last], "level": points["level"].to_numpy()[last],
         "baseline_period": points["baseline_period"].to_numpy()[last],

@@ -36,13 +36,14 @@ def pooled_sigma(frame: pd.DataFrame, min_pairs: int = 30) -> pd.DataFrame:
     d2 = shewhart_constants(2).d2
     # One integer code per (technology, standard kind, level), numbered in order of appearance.
     code, first_row = key_codes(frame, key)
-    agg = pd.Series(mr).groupby(code).agg(["mean", "count"])  # both skip the NaN first moving ranges
     keys = frame[key].iloc[first_row].reset_index(drop=True)
-    counted = np.arange(len(keys))[~keys.isna().any(axis=1).to_numpy()]  # a key with a missing part has no pairs
-    out = keys.assign(mr_bar=agg["mean"].reindex(counted).reindex(np.arange(len(keys))).to_numpy(),
-                      n_pairs=agg["count"].reindex(counted).reindex(np.arange(len(keys))).to_numpy())
+    pair = ~np.isnan(mr)  # the first check of each segment has no moving range
+    n_pairs = np.bincount(code[pair], minlength=len(keys))
+    n_pairs[keys.isna().any(axis=1).to_numpy()] = 0  # a key with a missing part has no pairs
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mr_bar = np.bincount(code[pair], weights=mr[pair], minlength=len(keys)) / n_pairs
+    out = keys.assign(mr_bar=np.where(n_pairs > 0, mr_bar, np.nan), n_pairs=n_pairs.astype("int64"))
     out["sigma"] = out["mr_bar"] / d2
-    out["n_pairs"] = out["n_pairs"].fillna(0).astype("int64")
     good = out[(out["n_pairs"] >= min_pairs) & (out["sigma"] > 0)]
     fleet = float(good["sigma"].median()) if len(good) else 0.02
     by_tech = good.groupby("technology")["sigma"].median()
@@ -63,15 +64,17 @@ def own_estimates(x: np.ndarray, starts: np.ndarray, pos: np.ndarray, n_min: int
     """
     seg = Segments.from_starts(starts) if seg is None else seg
     gid = seg.gid
-    first = np.flatnonzero(pos < n_min)
-    mr = moving_range(x, seg=seg)
-    df = pd.DataFrame({"g": gid[first], "x": x[first], "mr": mr[first]})
-    agg = df.groupby("g").agg(n=("x", "size"), center=("x", "mean"), mr_bar=("mr", "mean"))
-    agg = agg[agg["n"] >= n_min]
-    agg["sigma"] = agg["mr_bar"] / shewhart_constants(2).d2
+    # The n_min-th check of each group that has one, and the group's first n_min checks before it.
     rows = np.flatnonzero(pos == n_min - 1)
-    agg["row"] = pd.Series(rows, index=gid[rows]).reindex(agg.index)
-    return agg.reset_index().rename(columns={"g": "group"})[["group", "center", "sigma", "row"]]
+    rows = rows[rows >= n_min - 1]
+    back = rows - (n_min - 1)
+    rows = rows[(pos[back] == 0) & (gid[back] == gid[rows])]  # all n_min checks are among these rows
+    window = rows[:, None] - np.arange(n_min - 1, -1, -1)  # one row per group, oldest first
+    xs = x[window]
+    center = xs.mean(axis=1)
+    mr_bar = np.abs(np.diff(xs, axis=1)).mean(axis=1) if n_min > 1 else np.full(len(rows), np.nan)
+    return pd.DataFrame({"group": gid[rows], "center": center, "sigma": mr_bar / shewhart_constants(2).d2,
+                         "row": rows})
 
 
 def record_rebaseline(con: duckdb.DuckDBPyConnection, instrument_id: str, rebaseline_at: datetime,

@@ -26,16 +26,11 @@ def cusum_run_length(statistic: np.ndarray, starts: np.ndarray, carried: np.ndar
     Onset of a change = the check N-1 rows before the alarm (the first check of the positive run).
     seg: Segments.from_starts(starts), when the caller has it already.
     """
-    statistic = np.asarray(statistic, dtype=float)
+    from pipeline.charts import kernels
+
+    statistic = np.ascontiguousarray(statistic, dtype=float)
     seg = Segments.from_starts(starts) if seg is None else seg
-    # N = row - (last zero row of the group), or position + 1 (+ carried) before the group's first
-    # zero, i.e. row - max(last zero row, first row - 1): one running maximum, written in place.
-    idx = np.arange(len(statistic))
-    last = np.where(statistic <= 0.0, idx, -1)
-    np.maximum.accumulate(last, out=last)
-    none_yet = last < seg.first if carried is not None else None
-    np.maximum(last, seg.first - 1, out=last)
-    np.subtract(idx, last, out=last)
-    if carried is None:
-        return last
-    return (last + np.where(none_yet, np.asarray(carried, dtype=float), 0.0)).astype(np.int64)
+    # One compiled pass: N = N + 1 while the statistic is above zero, 0 where it is zero.
+    first = np.zeros(seg.n_groups, dtype=np.int64) if carried is None else \
+        np.asarray(carried, dtype=float)[seg.start_idx].astype(np.int64)
+    return kernels.runs_above_zero(statistic, seg.start_idx, first)

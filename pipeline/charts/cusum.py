@@ -1,9 +1,10 @@
-"""Two-sided tabular CUSUM for many charts at once, from cumulative sums and running minima.
+"""Two-sided tabular CUSUM for many charts at once, in one compiled pass over the fleet.
 
-C+_i = max(0, C+_{i-1} + z_i - k) is Lindley's recursion, whose solution is
-C+_i = S_i - min(-C+_0, min_{j<=i} S_j) with S_i = sum_{j<=i} (z_j - k); the lower side is the
-same on -z. So the CUSUM of every unit follows from one grouped cumulative sum and one grouped
-running minimum, with no loop over checks.
+C+_i = max(0, C+_{i-1} + z_i - k) and C-_i = max(0, C-_{i-1} - z_i - k), restarting at each group
+from its carried value (or the FIR headstart). The recursion is Lindley's, whose closed form
+C+_i = S_i - min(-C+_0, min_{j<=i} S_j) with S_i = sum_{j<=i} (z_j - k) is a cumulative sum and a
+running minimum; pipeline/charts/kernels.py runs the recursion itself for all groups back to back
+(the closed form needs a grouped running minimum, which numpy lacks, and collects rounding).
 
 Source: Page (1954) Biometrika 41:100-115; tabular form and FIR headstart as in Lucas & Crosier
 (1982) Technometrics 24:199-205 and Montgomery, Introduction to Statistical Quality Control, 9.1.
@@ -15,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from pipeline.charts.grouping import Segments, grouped_cummin, grouped_cumsum
+from pipeline.charts.grouping import Segments
 
 
 @dataclass(frozen=True)
@@ -27,19 +28,6 @@ class CusumResult:
     k: float
     h: float
     headstart: float
-
-
-def _one_side(x: np.ndarray, seg: Segments, k: float, init: np.ndarray, sign: float) -> np.ndarray:
-    """max(0, S - min(running min of S, -init)) with S the grouped cumulative sum of sign x - k.
-
-    Written in place: at fleet scale every temporary array costs more than the arithmetic."""
-    v = np.negative(x) if sign < 0 else x.copy()
-    v -= k
-    s = grouped_cumsum(v, seg.starts, seg=seg, overwrite=True)
-    floor = np.negative(init)[seg.gid]
-    np.minimum(grouped_cummin(s, seg.starts, seg=seg), floor, out=floor)
-    s -= floor
-    return np.maximum(s, 0.0, out=s)
 
 
 def tabular_cusum(z: np.ndarray, starts: np.ndarray | None = None, *, k: float = 0.5, h: float = 5.0,
@@ -57,7 +45,9 @@ def tabular_cusum(z: np.ndarray, starts: np.ndarray | None = None, *, k: float =
     Returns:
         CusumResult with C+ and C- per row.
     """
-    z = np.asarray(z, dtype=float)
+    from pipeline.charts import kernels
+
+    z = np.ascontiguousarray(z, dtype=float)
     if starts is None:
         starts = np.zeros(len(z), dtype=bool)
         if len(z):
@@ -70,6 +60,6 @@ def tabular_cusum(z: np.ndarray, starts: np.ndarray | None = None, *, k: float =
             return np.full(n_groups, float(headstart))
         return np.broadcast_to(np.asarray(value, dtype=float), (n_groups,))
 
-    upper = _one_side(z, seg, k, _init(init_upper), 1.0)
-    lower = _one_side(z, seg, k, _init(init_lower), -1.0)
+    upper = kernels.cusum_side(z, seg.start_idx, float(k), 1.0, np.ascontiguousarray(_init(init_upper)))
+    lower = kernels.cusum_side(z, seg.start_idx, float(k), -1.0, np.ascontiguousarray(_init(init_lower)))
     return CusumResult(upper=upper, lower=lower, k=k, h=h, headstart=headstart)

@@ -1,9 +1,7 @@
 """EWMA of many charts at once as one linear filter, with exact time-varying limits.
 
-E_i = lam z_i + (1 - lam) E_{i-1}. One scipy.signal.lfilter pass runs over all groups back to
-back; because the filter is linear, a group's own series is the global output minus the decayed
-carry-over of the previous group's last value: E_i = y_i + (1-lam)^p (E_0 - y_{start-1}), p the
-1-based position in the group. Limits: +/- L sqrt(lam/(2-lam) [1 - (1-lam)^(2i)]) for the i-th
+E_i = lam z_i + (1 - lam) E_{i-1}, from each group's carried value E_0, runs for all groups back to
+back in one compiled pass (pipeline/charts/kernels.py). Limits: +/- L sqrt(lam/(2-lam) [1 - (1-lam)^(2i)]) for the i-th
 point since the chart started.
 
 Source: Roberts (1959) Technometrics 1:239-250; exact limits as in Lucas & Saccucci (1990)
@@ -15,7 +13,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.signal import lfilter
 
 from pipeline.charts.grouping import Segments
 
@@ -59,6 +56,8 @@ def ewma(z: np.ndarray, starts: np.ndarray | None = None, *, lam: float, L: floa
         center, sigma: target and sigma of z (0 and 1 for standardised data).
         seg: Segments.from_starts(starts), when the caller has it already.
     """
+    from pipeline.charts import kernels
+
     z = np.asarray(z, dtype=float)
     n = len(z)
     if starts is None:
@@ -73,15 +72,8 @@ def ewma(z: np.ndarray, starts: np.ndarray | None = None, *, lam: float, L: floa
     n_groups = seg.n_groups
     e0 = np.broadcast_to(np.asarray(init, dtype=float), (n_groups,))
     c0 = np.broadcast_to(np.asarray(count0, dtype=float), (n_groups,))
-    out = lfilter([lam], [1.0, -(1.0 - lam)], z)
-    start_idx = seg.start_idx
-    prev = np.where(start_idx > 0, out[np.maximum(start_idx - 1, 0)], 0.0)
+    out = kernels.ewma_recursion(np.ascontiguousarray(z), seg.start_idx, float(lam), np.ascontiguousarray(e0))
     pos = seg.pos + 1
-    # Powers of (1 - lam) depend only on whole-number counts: computed once per count, then looked
-    # up; the correction out += decay (e0 - prev) is written in place.
-    carry = (e0 - prev)[gid]
-    carry *= _by_count(lambda p: (1.0 - lam) ** p, pos)
-    out += carry
     if not c0.any():
         count = pos
     else:

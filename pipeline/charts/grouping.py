@@ -89,14 +89,6 @@ def grouped_cumsum(values: np.ndarray, starts: np.ndarray, *, seg: Segments | No
     return total
 
 
-def grouped_cummin(values: np.ndarray, starts: np.ndarray, *, seg: Segments | None = None) -> np.ndarray:
-    """Running minimum restarting at each group (pandas' Cython grouped cummin).
-
-    seg: Segments.from_starts(starts), when the caller has it already."""
-    gid = group_index(starts) if seg is None else seg.gid
-    return pd.Series(np.asarray(values, dtype=float)).groupby(gid, sort=False).cummin().to_numpy()
-
-
 def grouped_last_true(flags: np.ndarray, starts: np.ndarray, *, seg: Segments | None = None) -> np.ndarray:
     """Index of the latest row at or before each row (same group) where flags is True; -1 if none.
 
@@ -160,4 +152,6 @@ def key_codes(frame: pd.DataFrame, columns: list[str]) -> tuple[np.ndarray, np.n
     code_run, uniq = pd.factorize(code_run)  # numbered in order of first appearance
     first_row = np.full(len(uniq), n, dtype=np.int64)
     np.minimum.at(first_row, code_run, run)
-    return np.repeat(code_run, np.diff(np.append(run, n))), first_row
+    run_of_row = np.cumsum(change, dtype=np.int64)
+    run_of_row -= 1
+    return code_run[run_of_row], first_row
