@@ -58,3 +58,11 @@ def runs_above_zero(stat: np.ndarray, start_idx: np.ndarray, carried: np.ndarray
             run = 0 if stat[i] <= 0.0 else run + 1
             out[i] = run
     return out
+
+
+def load_all() -> None:
+    """Compile every kernel (or load it from numba's cache) by running it once on a tiny input."""
+    one, start = np.zeros(1), np.zeros(1, dtype=np.int64)
+    cusum_side(one, start, 0.5, 1.0, one)
+    ewma_recursion(one, start, 0.1, one)
+    runs_above_zero(one, start, start)
