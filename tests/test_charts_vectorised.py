@@ -57,9 +57,11 @@ def test_key_codes_number_keys_in_order_of_appearance():
 def test_moving_range_and_run_lengths_equal_loops():
     codes, starts, rng = random_groups(seed=2)
     stat = np.maximum(rng.standard_normal(len(codes)), 0.0)
-    carried = rng.integers(0, 5, codes.max() + 1)[codes].astype(float)
+    carried_by_group = rng.integers(0, 5, codes.max() + 1).astype(float)
+    carried = carried_by_group[codes]
     mr = moving_range(stat, starts)
-    n_plain, n_carry = cusum_run_length(stat, starts), cusum_run_length(stat, starts, carried)
+    n_plain = cusum_run_length(stat, starts)
+    n_carry = cusum_run_length(stat, starts, carried_by_group[np.unique(codes)])
     for rows in per_group(codes):
         assert np.isnan(mr[rows[0]]) and np.allclose(mr[rows[1:]], np.abs(np.diff(stat[rows])))
         run, zero_seen = 0, False

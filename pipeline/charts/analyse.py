@@ -216,9 +216,9 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     cl0 = np.where(has_state, init("cusum_lower", 0.0), headstart)
     cus = tabular_cusum(zn, sn, k=k, h=h, init_upper=cu0, init_lower=cl0, seg=seg_n)
     gn = seg_n.gid
-    run_u = changepoint.cusum_run_length(cus.upper, sn, None if st is None else init("cusum_upper_run", 0.0)[gn],
+    run_u = changepoint.cusum_run_length(cus.upper, sn, None if st is None else init("cusum_upper_run", 0.0),
                                          seg=seg_n)
-    run_l = changepoint.cusum_run_length(cus.lower, sn, None if st is None else init("cusum_lower_run", 0.0)[gn],
+    run_l = changepoint.cusum_run_length(cus.lower, sn, None if st is None else init("cusum_lower_run", 0.0),
                                          seg=seg_n)
     ew = ewma(zn, sn, lam=lam, L=L, init=init("ewma", 0.0), count0=init("n", 0.0), seg=seg_n)
     mr_limit = mr_ucl_standardised()

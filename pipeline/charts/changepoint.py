@@ -22,7 +22,7 @@ def cusum_run_length(statistic: np.ndarray, starts: np.ndarray, carried: np.ndar
                      seg: Segments | None = None) -> np.ndarray:
     """N: number of consecutive checks, ending at each row, with the CUSUM side above zero.
 
-    `carried` is the count carried in from earlier data, per row of its group (0 if None).
+    `carried` is the count carried in from earlier data, one per group (0 if None).
     Onset of a change = the check N-1 rows before the alarm (the first check of the positive run).
     seg: Segments.from_starts(starts), when the caller has it already.
     """
@@ -32,5 +32,5 @@ def cusum_run_length(statistic: np.ndarray, starts: np.ndarray, carried: np.ndar
     seg = Segments.from_starts(starts) if seg is None else seg
     # One compiled pass: N = N + 1 while the statistic is above zero, 0 where it is zero.
     first = np.zeros(seg.n_groups, dtype=np.int64) if carried is None else \
-        np.asarray(carried, dtype=float)[seg.start_idx].astype(np.int64)
+        np.broadcast_to(np.asarray(carried, dtype=float), (seg.n_groups,)).astype(np.int64)
     return kernels.runs_above_zero(statistic, seg.start_idx, first)

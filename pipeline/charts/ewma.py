@@ -1,8 +1,8 @@
-"""EWMA of many charts at once as one linear filter, with exact time-varying limits.
+"""EWMA of many charts at once in one compiled pass, with exact time-varying limits.
 
-E_i = lam z_i + (1 - lam) E_{i-1}, from each group's carried value E_0, runs for all groups back to
-back in one compiled pass (pipeline/charts/kernels.py). Limits: +/- L sqrt(lam/(2-lam) [1 - (1-lam)^(2i)]) for the i-th
-point since the chart started.
+E_i = lam z_i + (1 - lam) E_{i-1}, from each group's carried value E_0, runs for all groups back
+to back (pipeline/charts/kernels.py). Limits: +/- L sqrt(lam/(2-lam) [1 - (1-lam)^(2i)]) for the
+i-th point since the chart started.
 
 Source: Roberts (1959) Technometrics 1:239-250; exact limits as in Lucas & Saccucci (1990)
 Technometrics 32:1-12 and NIST/SEMATECH e-Handbook of Statistical Methods, 6.3.2.4.

@@ -60,11 +60,6 @@ def group_starts(codes: np.ndarray) -> np.ndarray:
     return out
 
 
-def group_index(starts: np.ndarray) -> np.ndarray:
-    """0-based number of the group of each row."""
-    return np.cumsum(starts) - 1
-
-
 def position_in_group(starts: np.ndarray) -> np.ndarray:
     """0-based position of each row inside its group."""
     idx = np.arange(len(starts))
