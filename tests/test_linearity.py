@@ -52,3 +52,17 @@ def test_xbar_s_groups_limits():
     # Montgomery 6.3 (sigma known): B6 = c4 + 3 sqrt(1 - c4^2); c4(2) = 0.7979 (Walpole et al. Table A.22)
     np.testing.assert_allclose(g["s_ucl"], 0.7979 + 3 * np.sqrt(1 - 0.7979 ** 2), atol=2e-4)
     assert g["xbar"].iloc[0] == 3.0 and g["xbar"].iloc[0] > g["xbar_ucl"].iloc[0]
+
+
+def test_sessions_split_by_unit_and_gap_whatever_the_row_order():
+    exp = np.array([0.040, 0.080, 0.150])
+    parts = [session("A", "2025-01-01 08:00", exp, exp * 1.01), session("A", "2025-01-01 10:00", exp, exp),
+             session("B", "2025-01-01 08:01", exp, exp + 0.002)]
+    frame = pd.concat(parts, ignore_index=True).sample(frac=1.0, random_state=3)
+    fits = fit_linearity(frame, window_minutes=60.0)
+    # common practice: a session is one unit's checks run together; 2 h apart are two sessions
+    assert list(zip(fits["instrument_id"], fits["started_at"])) == [
+        ("A", pd.Timestamp("2025-01-01 08:00")), ("A", pd.Timestamp("2025-01-01 10:00")),
+        ("B", pd.Timestamp("2025-01-01 08:01"))]
+    assert list(fits["n_checks"]) == [3, 3, 3] and list(fits["n_levels"]) == [3, 3, 3]
+    assert abs(fits["slope"].iloc[0] - 1.01) < 1e-9

@@ -16,12 +16,17 @@ import pandas as pd
 from scipy.stats import t as t_dist
 
 
-def verification_sessions(frame: pd.DataFrame, window_minutes: float = 60.0) -> pd.Series:
-    """Session number per row (instrument_id, measured_at) of verification checks."""
-    f = frame.sort_values(["instrument_id", "measured_at"], kind="stable")
-    same = ((f["instrument_id"] == f["instrument_id"].shift())
-            & ((f["measured_at"] - f["measured_at"].shift()) <= pd.Timedelta(minutes=window_minutes)))
-    return (~same).cumsum().reindex(frame.index)
+def verification_sessions(frame: pd.DataFrame, window_minutes: float = 60.0) -> tuple[np.ndarray, np.ndarray]:
+    """Rows of verification checks (instrument_id, measured_at) in (unit, time) order, and the
+    session number (0, 1, ...) of each: a unit's checks at most `window_minutes` after the previous one."""
+    unit = frame["instrument_id"]
+    codes = unit.cat.codes.to_numpy() if isinstance(unit.dtype, pd.CategoricalDtype) else \
+        pd.factorize(unit, sort=True)[0]
+    t = frame["measured_at"].to_numpy(dtype="datetime64[ns]").view(np.int64)
+    order = np.lexsort((t, codes))
+    codes, t = codes[order], t[order]
+    same = (codes[1:] == codes[:-1]) & (np.diff(t) <= int(window_minutes * 60e9))
+    return order, np.cumsum(np.r_[True, ~same]) - 1
 
 
 def fit_linearity(frame: pd.DataFrame, window_minutes: float = 60.0, confidence: float = 0.95) -> pd.DataFrame:
@@ -34,27 +39,34 @@ def fit_linearity(frame: pd.DataFrame, window_minutes: float = 60.0, confidence:
             "intercept", "intercept_low", "intercept_high", "residual_sd", "proportional_bias", "constant_bias"]
     if frame.empty:
         return pd.DataFrame(columns=cols)
-    s = verification_sessions(frame, window_minutes)
-    x, y = frame["expected"].to_numpy(float), frame["measured"].to_numpy(float)
-    d = pd.DataFrame({"g": s.to_numpy(), "x": x, "y": y, "xx": x * x, "xy": x * y, "yy": y * y,
-                      "instrument_id": frame["instrument_id"].to_numpy(), "t": frame["measured_at"].to_numpy(),
-                      "level": frame["level"].to_numpy()})
-    a = d.groupby("g").agg(instrument_id=("instrument_id", "first"), started_at=("t", "min"), ended_at=("t", "max"),
-                           n_checks=("x", "size"), n_levels=("level", "nunique"), sx=("x", "sum"), sy=("y", "sum"),
-                           sxx=("xx", "sum"), sxy=("xy", "sum"), syy=("yy", "sum"))
-    a = a[(a["n_checks"] >= 3) & (a["n_levels"] >= 2)].reset_index(drop=True)
-    n = a["n_checks"].to_numpy(float)
-    sxx = a["sxx"] - a["sx"] ** 2 / n
-    sxy = a["sxy"] - a["sx"] * a["sy"] / n
-    syy = a["syy"] - a["sy"] ** 2 / n
+    order, g = verification_sessions(frame, window_minutes)
+    x, y = frame["expected"].to_numpy(float)[order], frame["measured"].to_numpy(float)[order]
+    level = frame["level"].to_numpy(float)[order]
+    # Grouped sums of the sorted rows (each session's rows are contiguous and in time order).
+    n = np.bincount(g).astype(float)
+    sx, sy = np.bincount(g, x), np.bincount(g, y)
+    sxx_raw, sxy_raw, syy_raw = np.bincount(g, x * x), np.bincount(g, x * y), np.bincount(g, y * y)
+    by_level = np.lexsort((level, g))
+    new_level = np.r_[True, (g[by_level][1:] != g[by_level][:-1]) | (level[by_level][1:] != level[by_level][:-1])]
+    n_levels = np.bincount(g[by_level][new_level], minlength=len(n))
+    first = np.flatnonzero(np.r_[True, g[1:] != g[:-1]])
+    last = np.r_[first[1:], len(g)] - 1
+    fit = np.flatnonzero((n >= 3) & (n_levels >= 2))
+    n, sx, sy = n[fit], sx[fit], sy[fit]
+    sxx = sxx_raw[fit] - sx ** 2 / n
+    sxy = sxy_raw[fit] - sx * sy / n
+    syy = syy_raw[fit] - sy ** 2 / n
     slope = sxy / sxx
-    intercept = (a["sy"] - slope * a["sx"]) / n
+    intercept = (sy - slope * sx) / n
     sse = np.maximum(syy - slope * sxy, 0.0)
     s2 = sse / np.maximum(n - 2, 1)
     se_b = np.sqrt(s2 / sxx)
-    se_a = np.sqrt(s2 * (1 / n + (a["sx"] / n) ** 2 / sxx))
+    se_a = np.sqrt(s2 * (1 / n + (sx / n) ** 2 / sxx))
     tq = t_dist.ppf(0.5 + confidence / 2, np.maximum(n - 2, 1))
-    out = a[["instrument_id", "started_at", "ended_at", "n_checks", "n_levels"]].copy()
+    when = frame["measured_at"].to_numpy()[order]
+    out = pd.DataFrame({"instrument_id": frame["instrument_id"].to_numpy()[order][first[fit]],
+                        "started_at": when[first[fit]], "ended_at": when[last[fit]],
+                        "n_checks": n.astype(np.int64), "n_levels": n_levels[fit]})
     out["slope"], out["slope_low"], out["slope_high"] = slope, slope - tq * se_b, slope + tq * se_b
     out["intercept"], out["intercept_low"], out["intercept_high"] = intercept, intercept - tq * se_a, intercept + tq * se_a
     out["residual_sd"] = np.sqrt(s2)
