@@ -196,3 +196,8 @@ def test_own_estimates_equal_loop_with_carried_positions():
         # Montgomery 6.4: phase I centre = mean and sigma = MR-bar / d2(2) of the segment's first 20 checks
         assert abs(est.loc[g, "center"] - center) < 1e-15 and abs(est.loc[g, "sigma"] / sigma - 1) < 1e-9
         assert est.loc[g, "row"] == row
+
+
+def test_ewma_counts_must_be_whole():
+    with pytest.raises(ValueError, match="whole numbers"):
+        ewma(np.zeros(3), lam=0.1, L=2.7, count0=1.5)

@@ -94,8 +94,9 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     new: new checks (KEY, check_id, measured_at, check_type, relative_error, technology, standard_kind),
       sorted by KEY then time. tail: stored points (KEY, check_id, measured_at, relative_error, position)
       of the same groups. state: chart_state rows; own: stored own baselines (KEY, center, sigma);
-      pooled: technology, standard_kind, level, sigma. Returns points, limits (the constant individuals and
-      moving-range limits of every point), signals, baselines, state frames and check_type.
+      pooled: technology, standard_kind, level, sigma. Returns points (the lower EWMA limit is the upper one
+      negated, written by the insert), limits (the constant individuals and moving-range limits of
+      every point), signals, baselines, state frames and check_type.
     Every statistic works on the arrays of all groups back to back (grouping.Segments computed once);
     in a full run (no tail) the new rows are the frame, so nothing is copied to select them.
     """
@@ -152,7 +153,8 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     else:
         n_tail, tail_sum = 0, 0.0
     r0 = n0 - n_tail  # checks of the segment charted before this frame's first row
-    position = np.add(r0, pos0, dtype=float)
+    r0 = int(r0) if np.isscalar(r0) else r0.astype(np.int64)  # whole counts, carried as floats
+    position = np.add(r0, pos0)  # 1-based check number in the segment
     position += 1
     sig_pool = pooled_lookup(frame, pooled)
     # Own baseline: stored, or frozen now from the first n_min checks of the segment (per group).
@@ -162,7 +164,7 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
         o = own.set_index(KEY)
         center_g = o["center"].reindex(group_keys).to_numpy(dtype=float)
         sigma_g = o["sigma"].reindex(group_keys).to_numpy(dtype=float)
-    check_no = pos0 if np.isscalar(r0) and r0 == 0 else (position - 1).astype(int)
+    check_no = pos0 if np.isscalar(r0) and r0 == 0 else position - 1
     est = own_estimates(x, starts, check_no, n_min, seg=seg)
     new_own = est[np.isnan(center_g[est["group"].to_numpy()])] if len(est) else est
     if len(new_own):
@@ -226,9 +228,9 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     points = pd.DataFrame({
         "check_id": of_new(frame["check_id"].to_numpy()), "instrument_id": unit_of(new_idx),
         "level": of_new(frame["level"].to_numpy()), "baseline_period": of_new(frame["baseline_period"].to_numpy()),
-        "measured_at": of_new(frame["measured_at"].to_numpy()), "position": of_new(position).astype(np.int64),
+        "measured_at": of_new(frame["measured_at"].to_numpy()), "position": of_new(position),
         "relative_error": of_new(x), "z": zn, "moving_range": mr_new,
-        "cusum_upper": cus.upper, "cusum_lower": cus.lower, "ewma": ew.ewma, "ewma_lcl": ew.lcl, "ewma_ucl": ew.ucl,
+        "cusum_upper": cus.upper, "cusum_lower": cus.lower, "ewma": ew.ewma, "ewma_ucl": ew.ucl,
         "center": of_new(center_out), "sigma": of_new(sigma_out),
         "sigma_source": source[new_idx] if has_old else source,
         "cusum_upper_run": run_u, "cusum_lower_run": run_l}, copy=False)  # no block copy of 9 M rows
@@ -254,7 +256,7 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
         onset_at = np.where(onset_ok, measured_new[np.maximum(onset_row, 0)], np.datetime64("NaT"))
         sig_frames.append(signal_frame(base, hit, "cusum", "h", side, stat[hit], onset_at,
                                        np.where(onset_ok, 0, run - 1)))
-    neg_ucl = np.negative(ew.ucl)
+    neg_ucl = ew.lcl
     for side, above, above_before in (("up", ew.ewma > ew.ucl, e0 > prev_half),
                                       ("down", ew.ewma < neg_ucl, -e0 > prev_half)):  # -e > ucl, exactly
         hit = crossed(above, above_before)
@@ -528,8 +530,8 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
     t_compute = time.perf_counter() - t0 - t_read
     with transaction(con):
         con.register("_bf_points", pa.Table.from_pandas(pts, preserve_index=False))  # Arrow: no copy
-        con.execute("INSERT INTO chart_points BY NAME SELECT *, $ind_lcl AS ind_lcl, $ind_ucl AS ind_ucl, "
-                    "$mr_ucl AS mr_ucl FROM _bf_points", out["limits"])
+        con.execute("INSERT INTO chart_points BY NAME SELECT *, -ewma_ucl AS ewma_lcl, $ind_lcl AS ind_lcl, "
+                    "$ind_ucl AS ind_ucl, $mr_ucl AS mr_ucl FROM _bf_points", out["limits"])
         con.unregister("_bf_points")
         con.register("_bf_state", st)
         con.execute("DELETE FROM chart_state t USING _bf_state s WHERE t.instrument_id = s.instrument_id "

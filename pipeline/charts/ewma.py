@@ -19,27 +19,29 @@ from pipeline.charts.grouping import Segments
 
 @dataclass(frozen=True)
 class EwmaResult:
-    """EWMA values and exact limits (same units as z; centre 0 for standardised data)."""
+    """EWMA values and exact limits (same units as z; centre 0 for standardised data).
+
+    The limits are centre -/+ `half`; with centre 0, `ucl` is `half` itself and `lcl` its negation."""
 
     ewma: np.ndarray
-    lcl: np.ndarray
-    ucl: np.ndarray
+    half: np.ndarray
     lam: float
     L: float
+    center: float = 0.0
+
+    @property
+    def ucl(self) -> np.ndarray:
+        return self.half if self.center == 0.0 else self.center + self.half
+
+    @property
+    def lcl(self) -> np.ndarray:
+        return np.negative(self.half) if self.center == 0.0 else self.center - self.half
 
 
 def ewma_limits_halfwidth(i: np.ndarray, lam: float, L: float, sigma: float = 1.0) -> np.ndarray:
     """Exact half-width of the EWMA limits after i points (i >= 1)."""
     i = np.asarray(i, dtype=float)
     return L * sigma * np.sqrt(lam / (2.0 - lam) * (1.0 - (1.0 - lam) ** (2.0 * i)))
-
-
-def _by_count(f, i: np.ndarray) -> np.ndarray:
-    """f(i) for many whole-number counts i >= 0: evaluated once per distinct count and looked up."""
-    top = int(i.max()) if len(i) else 0
-    if len(i) < 4 * (top + 1):
-        return f(i)
-    return f(np.arange(top + 1, dtype=float))[i if i.dtype.kind in "iu" else i.astype(np.int64)]
 
 
 def ewma(z: np.ndarray, starts: np.ndarray | None = None, *, lam: float, L: float,
@@ -66,22 +68,17 @@ def ewma(z: np.ndarray, starts: np.ndarray | None = None, *, lam: float, L: floa
             starts[0] = True
     if n == 0:
         empty = np.empty(0)
-        return EwmaResult(empty, empty, empty, lam, L)
+        return EwmaResult(empty, empty, lam, L, center)
     seg = Segments.from_starts(starts) if seg is None else seg
-    gid = seg.gid
     n_groups = seg.n_groups
     e0 = np.broadcast_to(np.asarray(init, dtype=float), (n_groups,))
     c0 = np.broadcast_to(np.asarray(count0, dtype=float), (n_groups,))
-    out = kernels.ewma_recursion(np.ascontiguousarray(z), seg.start_idx, float(lam), np.ascontiguousarray(e0))
-    pos = seg.pos + 1
-    if not c0.any():
-        count = pos
-    else:
-        count = c0[gid]
-        count += pos
-    whole = np.array_equal(c0, np.floor(c0)) and (not len(c0) or c0.min() >= 0)
-    half = (_by_count(lambda i: ewma_limits_halfwidth(i, lam, L, sigma), count) if whole
-            else ewma_limits_halfwidth(count, lam, L, sigma))
-    if center == 0.0:  # 0 - half and 0 + half are exactly -half and half
-        return EwmaResult(ewma=out, lcl=np.negative(half), ucl=half, lam=lam, L=L)
-    return EwmaResult(ewma=out, lcl=center - half, ucl=center + half, lam=lam, L=L)
+    if not (np.array_equal(c0, np.floor(c0)) and c0.min() >= 0):
+        raise ValueError("count0 must be whole numbers of points already charted")
+    c0 = c0.astype(np.int64)
+    # The half-width depends only on the count of points: evaluated once per count, then looked up.
+    longest = int(np.diff(np.append(seg.start_idx, n)).max())
+    table = ewma_limits_halfwidth(np.arange(int(c0.max()) + longest + 1), lam, L, sigma)
+    out, half = kernels.ewma_recursion(np.ascontiguousarray(z), seg.start_idx, float(lam),
+                                       np.ascontiguousarray(e0), c0, table)
+    return EwmaResult(ewma=out, half=half, lam=lam, L=L, center=center)

@@ -30,19 +30,25 @@ def cusum_side(z: np.ndarray, start_idx: np.ndarray, k: float, sign: float, init
 
 
 @numba.njit(cache=True, nogil=True)
-def ewma_recursion(z: np.ndarray, start_idx: np.ndarray, lam: float, init: np.ndarray) -> np.ndarray:
-    """E_i = lam z_i + (1 - lam) E_{i-1}, E_0 = init[group]."""
+def ewma_recursion(z: np.ndarray, start_idx: np.ndarray, lam: float, init: np.ndarray, count0: np.ndarray,
+                   halfwidth: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """E_i = lam z_i + (1 - lam) E_{i-1}, E_0 = init[group]; and the limit half-width of each row,
+    halfwidth[c] for its count c of points charted (count0[group] before the group's first row)."""
     n = len(z)
     out = np.empty(n)
+    half = np.empty(n)
     n_groups = len(start_idx)
     keep = 1.0 - lam
     for g in range(n_groups):
         hi = start_idx[g + 1] if g + 1 < n_groups else n
         e = init[g]
+        c = count0[g]
         for i in range(start_idx[g], hi):
             e = lam * z[i] + keep * e
+            c += 1
             out[i] = e
-    return out
+            half[i] = halfwidth[c]
+    return out, half
 
 
 @numba.njit(cache=True, nogil=True)
@@ -64,5 +70,5 @@ def load_all() -> None:
     """Compile every kernel (or load it from numba's cache) by running it once on a tiny input."""
     one, start = np.zeros(1), np.zeros(1, dtype=np.int64)
     cusum_side(one, start, 0.5, 1.0, one)
-    ewma_recursion(one, start, 0.1, one)
+    ewma_recursion(one, start, 0.1, one, start, np.zeros(2))
     runs_above_zero(one, start, start)
