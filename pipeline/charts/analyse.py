@@ -152,8 +152,8 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
         tail_sum = pd.Series(np.where(old, x, 0.0)).groupby(gid).transform("sum").to_numpy()
     else:
         n_tail, tail_sum = 0, 0.0
-    r0 = n0 - n_tail  # checks of the segment charted before this frame's first row
-    r0 = int(r0) if np.isscalar(r0) else r0.astype(np.int64)  # whole counts, carried as floats
+    r0 = n0 - n_tail  # checks of the segment charted before this frame's first row (whole counts)
+    r0 = int(r0) if np.isscalar(r0) else r0.astype(np.int64)
     position = np.add(r0, pos0)  # 1-based check number in the segment
     position += 1
     sig_pool = pooled_lookup(frame, pooled)
