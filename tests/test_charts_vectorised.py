@@ -201,3 +201,22 @@ def test_own_estimates_equal_loop_with_carried_positions():
 def test_ewma_counts_must_be_whole():
     with pytest.raises(ValueError, match="whole numbers"):
         ewma(np.zeros(3), lam=0.1, L=2.7, count0=1.5)
+
+
+def test_pooled_lookup_of_some_rows_equals_a_row_by_row_merge():
+    from pipeline.charts.analyse import pooled_lookup
+
+    rng = np.random.default_rng(12)
+    n = 2000
+    frame = pd.DataFrame({"technology": pd.Categorical(rng.choice(["fuel_cell", "infrared"], n)),
+                          "standard_kind": pd.Categorical(rng.choice(["wet_bath", "dry_gas"], n)),
+                          "level": rng.choice([0.04, 0.08, 0.15], n)}).sort_values(["technology", "level"])
+    frame = frame.reset_index(drop=True)
+    pooled = pd.DataFrame({"technology": ["fuel_cell", "fuel_cell", "infrared"], "standard_kind": ["wet_bath"] * 3,
+                           "level": [0.04, 0.08, 0.08], "sigma": [0.011, 0.012, 0.009]})
+    merged = frame.astype(str).astype({"level": float}).merge(pooled, how="left", on=["technology", "standard_kind",
+                                                                                       "level"])["sigma"].to_numpy()
+    rows = np.sort(rng.choice(n, 300, replace=False))
+    # common practice: a lookup of a key in a table; keys without an entry are missing (NaN)
+    np.testing.assert_array_equal(pooled_lookup(frame, pooled), merged)
+    np.testing.assert_array_equal(pooled_lookup(frame, pooled, rows), merged[rows])

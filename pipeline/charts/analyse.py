@@ -25,7 +25,7 @@ from pipeline.charts.baselines import POOLED_METHOD, own_estimates, pooled_sigma
 from pipeline.charts.cusum import tabular_cusum
 from pipeline.charts.design import design_cusum, design_ewma
 from pipeline.charts.ewma import ewma
-from pipeline.charts.grouping import Segments, group_starts, key_codes
+from pipeline.charts.grouping import Segments, group_starts, key_runs
 from pipeline.charts.linearity import fit_linearity
 from pipeline.charts.xbar_s import xbar_s_groups
 from pipeline.charts.individuals import moving_range, mr_ucl_standardised
@@ -76,15 +76,17 @@ def _starts(frame: pd.DataFrame) -> np.ndarray:
     return s
 
 
-def pooled_lookup(frame: pd.DataFrame, pooled: pd.DataFrame) -> np.ndarray:
-    """The frozen pooled sigma of each row's technology, standard kind and level (NaN if none yet)."""
+def pooled_lookup(frame: pd.DataFrame, pooled: pd.DataFrame, rows: np.ndarray | None = None) -> np.ndarray:
+    """The frozen pooled sigma of each row's technology, standard kind and level (NaN if none yet),
+    for `rows` of the frame (all rows if None). Looked up per run of rows with one key."""
     pool_key = ["technology", "standard_kind", "level"]
-    if frame.empty:
-        return np.empty(0)
-    code, first = key_codes(frame, pool_key)
+    rows = np.arange(len(frame)) if rows is None else np.asarray(rows, dtype=np.int64)
+    if frame.empty or not len(rows):
+        return np.empty(len(rows))
+    run, code, first = key_runs(frame, pool_key)
     keys = frame[pool_key].iloc[first].astype({"technology": str, "standard_kind": str})
     sigma = keys.merge(pooled, how="left", on=pool_key)["sigma"].to_numpy(dtype=float)
-    return sigma[code]
+    return sigma[code[np.searchsorted(run, rows, side="right") - 1]]
 
 
 def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, own: pd.DataFrame,
@@ -156,7 +158,6 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     r0 = int(r0) if np.isscalar(r0) else r0.astype(np.int64)
     position = np.add(r0, pos0)  # 1-based check number in the segment
     position += 1
-    sig_pool = pooled_lookup(frame, pooled)
     # Own baseline: stored, or frozen now from the first n_min checks of the segment (per group).
     center_g = np.full(n_groups, np.nan)
     sigma_g = np.full(n_groups, np.nan)
@@ -186,8 +187,8 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
 
     def rows_of(a):
         return a if np.isscalar(a) else a[q_rows]
-    q, q_center, q_scale = short_run.quesenberry_q(x, starts, sig_pool[q_rows], r0=rows_of(r0),
-                                                   sum0=rows_of(sum0 - tail_sum), seg=seg, rows=q_rows)
+    q, q_center, q_scale = short_run.quesenberry_q(x, starts, pooled_lookup(frame, pooled, q_rows),
+                                                   r0=rows_of(r0), sum0=rows_of(sum0 - tail_sum), seg=seg, rows=q_rows)
     z[q_rows] = q
     center_out[q_rows] = q_center
     sigma_out[q_rows] = q_scale
@@ -278,7 +279,8 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
                        "level": frame["level"].to_numpy()[first_rows],
                        "baseline_period": frame["baseline_period"].to_numpy()[first_rows], "version": 1,
                        "frozen_at": frame["measured_at"].to_numpy()[first_rows], "reason": "period_start",
-                       "sigma_source": "fleet_pooled", "center": 0.0, "sigma": sig_pool[first_rows], "n_checks": 0,
+                       "sigma_source": "fleet_pooled", "center": 0.0, "sigma": pooled_lookup(frame, pooled, first_rows),
+                       "n_checks": 0,
                        "first_check_id": frame["check_id"].to_numpy()[first_rows],
                        "last_check_id": frame["check_id"].to_numpy()[first_rows]})
     if len(new_own):

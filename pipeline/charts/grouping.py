@@ -123,14 +123,15 @@ def grouped_rolling_sum(flags: np.ndarray, starts: np.ndarray, window: int, *,
     return np.where(pos >= window - 1, out, np.nan)
 
 
-def key_codes(frame: pd.DataFrame, columns: list[str]) -> tuple[np.ndarray, np.ndarray]:
-    """Integer code per row of the key `columns` (missing values are a value), numbered in order of
-    first appearance, and the first row of each code. Categorical columns use their codes."""
+def key_runs(frame: pd.DataFrame, columns: list[str]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Runs of successive rows with one value of the key `columns`: the first row of each run, the
+    key's integer code for each run (missing values are a value; codes numbered in order of first
+    appearance) and the first row of each code. Categorical columns use their codes."""
     n = len(frame)
     if not n:
-        return np.empty(0, dtype=np.int64), np.empty(0, dtype=np.int64)
-    # Rows of sorted frames come in long runs of one key: find the runs, number the keys of the
-    # runs' first rows (a small table), and spread the numbers over the runs.
+        return (np.empty(0, dtype=np.int64),) * 3
+    # Rows of sorted frames come in long runs of one key: find the runs and number the keys of the
+    # runs' first rows (a small table).
     values = []
     change = np.zeros(n, dtype=bool)
     change[0] = True
@@ -147,6 +148,11 @@ def key_codes(frame: pd.DataFrame, columns: list[str]) -> tuple[np.ndarray, np.n
     code_run, uniq = pd.factorize(code_run)  # numbered in order of first appearance
     first_row = np.full(len(uniq), n, dtype=np.int64)
     np.minimum.at(first_row, code_run, run)
-    run_of_row = np.cumsum(change, dtype=np.int64)
-    run_of_row -= 1
+    return run, code_run, first_row
+
+
+def key_codes(frame: pd.DataFrame, columns: list[str]) -> tuple[np.ndarray, np.ndarray]:
+    """Integer code per row of the key `columns` (as key_runs numbers them) and the first row of each code."""
+    run, code_run, first_row = key_runs(frame, columns)
+    run_of_row = np.repeat(np.arange(len(run)), np.diff(np.append(run, len(frame))))
     return code_run[run_of_row], first_row
