@@ -9,7 +9,7 @@ import pytest
 from pipeline.charts.baselines import own_estimates, pooled_sigma
 from pipeline.charts.changepoint import cusum_run_length
 from pipeline.charts.ewma import ewma
-from pipeline.charts.grouping import Segments, group_starts, grouped_cumsum, key_codes
+from pipeline.charts.grouping import Segments, group_starts, grouped_cumsum, key_runs
 from pipeline.charts.individuals import moving_range
 from pipeline.charts.run_rules import RULES, apply_run_rules
 from pipeline.charts.short_run import quesenberry_q
@@ -41,11 +41,12 @@ def test_segments_and_grouped_sums_equal_loops():
     assert list(seg.last_idx) == [rows[-1] for rows in per_group(codes)]
 
 
-def test_key_codes_number_keys_in_order_of_appearance():
+def test_key_runs_number_keys_in_order_of_appearance():
     rng = np.random.default_rng(1)
     frame = pd.DataFrame({"a": pd.Categorical(rng.choice(["x", "y", "z"], 500)),
                           "b": rng.choice([0.04, 0.08, np.nan], 500)})
-    code, first = key_codes(frame, ["a", "b"])
+    run, code_run, first = key_runs(frame, ["a", "b"])
+    code = np.repeat(code_run, np.diff(np.append(run, len(frame))))
     seen: dict = {}
     for i, key in enumerate(zip(frame["a"].astype(str), frame["b"].fillna(-1.0))):
         seen.setdefault(key, (len(seen), i))

@@ -17,7 +17,7 @@ import numpy as np
 import pandas as pd
 
 from pipeline.charts.constants import shewhart_constants
-from pipeline.charts.grouping import Segments, group_starts, key_codes
+from pipeline.charts.grouping import Segments, group_starts, key_runs
 from pipeline.charts.individuals import moving_range
 
 POOLED_METHOD = "pooled MR-bar / d2(2) over consecutive checks of each unit segment (Montgomery 6.4)"
@@ -34,14 +34,17 @@ def pooled_sigma(frame: pd.DataFrame, min_pairs: int = 30) -> pd.DataFrame:
     x = frame["relative_error"].to_numpy(dtype=float)
     mr = moving_range(x, group_starts(frame["gid"].to_numpy()))
     d2 = shewhart_constants(2).d2
-    # One integer code per (technology, standard kind, level), numbered in order of appearance.
-    code, first_row = key_codes(frame, key)
+    # One integer code per (technology, standard kind, level), numbered in order of appearance, for
+    # each run of rows with one key; sums per run, then per key.
+    run, code, first_row = key_runs(frame, key)
     keys = frame[key].iloc[first_row].reset_index(drop=True)
     pair = ~np.isnan(mr)  # the first check of each segment has no moving range
-    n_pairs = np.bincount(code[pair], minlength=len(keys))
+    mr[~pair] = 0.0
+    n_pairs = np.bincount(code, weights=np.add.reduceat(pair, run, dtype=np.int64),
+                          minlength=len(keys)).astype(np.int64)
     n_pairs[keys.isna().any(axis=1).to_numpy()] = 0  # a key with a missing part has no pairs
     with np.errstate(invalid="ignore", divide="ignore"):
-        mr_bar = np.bincount(code[pair], weights=mr[pair], minlength=len(keys)) / n_pairs
+        mr_bar = np.bincount(code, weights=np.add.reduceat(mr, run), minlength=len(keys)) / n_pairs
     out = keys.assign(mr_bar=np.where(n_pairs > 0, mr_bar, np.nan), n_pairs=n_pairs.astype("int64"))
     out["sigma"] = out["mr_bar"] / d2
     good = out[(out["n_pairs"] >= min_pairs) & (out["sigma"] > 0)]

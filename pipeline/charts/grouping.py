@@ -150,9 +150,3 @@ def key_runs(frame: pd.DataFrame, columns: list[str]) -> tuple[np.ndarray, np.nd
     np.minimum.at(first_row, code_run, run)
     return run, code_run, first_row
 
-
-def key_codes(frame: pd.DataFrame, columns: list[str]) -> tuple[np.ndarray, np.ndarray]:
-    """Integer code per row of the key `columns` (as key_runs numbers them) and the first row of each code."""
-    run, code_run, first_row = key_runs(frame, columns)
-    run_of_row = np.repeat(np.arange(len(run)), np.diff(np.append(run, len(frame))))
-    return code_run[run_of_row], first_row
