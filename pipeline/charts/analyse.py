@@ -184,10 +184,14 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     with np.errstate(divide="ignore", invalid="ignore"):  # rows without an own sigma are replaced below
         z /= sigma_out
     q_rows = np.flatnonzero(~use_own)
+    # Segments that begin in this frame (their version-1 baseline is frozen now); one pooled-sigma
+    # lookup serves them and the Q-phase rows.
+    first_rows = seg.start_idx[(position[seg.start_idx] == 1) & ~old[seg.start_idx]]
+    q_pool, first_pool = np.split(pooled_lookup(frame, pooled, np.r_[q_rows, first_rows]), [len(q_rows)])
 
     def rows_of(a):
         return a if np.isscalar(a) else a[q_rows]
-    q, q_center, q_scale = short_run.quesenberry_q(x, starts, pooled_lookup(frame, pooled, q_rows),
+    q, q_center, q_scale = short_run.quesenberry_q(x, starts, q_pool,
                                                    r0=rows_of(r0), sum0=rows_of(sum0 - tail_sum), seg=seg, rows=q_rows)
     z[q_rows] = q
     center_out[q_rows] = q_center
@@ -274,13 +278,11 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
                                        events["direction"].array, zn[rows]))
     signals = pd.concat(sig_frames, ignore_index=True)
     # Baselines frozen in this run: version 1 at each new segment's first check, version 2 own estimate.
-    first_rows = seg.start_idx[(position[seg.start_idx] == 1) & ~old[seg.start_idx]]
     b1 = pd.DataFrame({"instrument_id": unit_of(first_rows),
                        "level": frame["level"].to_numpy()[first_rows],
                        "baseline_period": frame["baseline_period"].to_numpy()[first_rows], "version": 1,
                        "frozen_at": frame["measured_at"].to_numpy()[first_rows], "reason": "period_start",
-                       "sigma_source": "fleet_pooled", "center": 0.0, "sigma": pooled_lookup(frame, pooled, first_rows),
-                       "n_checks": 0,
+                       "sigma_source": "fleet_pooled", "center": 0.0, "sigma": first_pool, "n_checks": 0,
                        "first_check_id": frame["check_id"].to_numpy()[first_rows],
                        "last_check_id": frame["check_id"].to_numpy()[first_rows]})
     if len(new_own):

@@ -149,4 +149,3 @@ def key_runs(frame: pd.DataFrame, columns: list[str]) -> tuple[np.ndarray, np.nd
     first_row = np.full(len(uniq), n, dtype=np.int64)
     np.minimum.at(first_row, code_run, run)
     return run, code_run, first_row
-
