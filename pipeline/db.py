@@ -57,6 +57,11 @@ WRITER_CHECKPOINT_THRESHOLD = "1GB"
 # until the limit makes it evict them; the bound keeps a whole-fleet ingest under 2 GB of memory.
 # Larger sorts and windows spill to the temp directory instead of failing.
 WRITER_MEMORY_LIMIT = "1536MB"
+# The buffer pool while the chart engine runs (pipeline/charts/analyse.py). Its sorted read of a
+# whole fleet and its inserts were faster with a larger pool: on the 10-million-check fleet a full
+# run took 0.1-2.6 s less with 3-4 GB than with 1.5 GB in each of 5 paired runs, and the process
+# peak stayed 3.7 GB either way (the engine's own arrays set it, not DuckDB's pool).
+ANALYSE_MEMORY_LIMIT = "3GB"
 
 
 def open_database(path: str | Path) -> duckdb.DuckDBPyConnection:
@@ -66,6 +71,17 @@ def open_database(path: str | Path) -> duckdb.DuckDBPyConnection:
     con.execute(f"SET memory_limit = '{WRITER_MEMORY_LIMIT}'")
     migrate(con)
     return con
+
+
+@contextmanager
+def memory_limit(con: duckdb.DuckDBPyConnection, limit: str) -> Iterator[None]:
+    """DuckDB's memory_limit set to `limit` inside the block, restored after it."""
+    before = con.execute("SELECT current_setting('memory_limit')").fetchone()[0]
+    con.execute(f"SET memory_limit = '{limit}'")
+    try:
+        yield
+    finally:
+        con.execute(f"SET memory_limit = '{before}'")
 
 
 def migrate(con: duckdb.DuckDBPyConnection) -> list[str]:

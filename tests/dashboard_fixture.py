@@ -24,8 +24,10 @@ CONTRACT_TABLES = {
         n_checks BIGINT, parameters TEXT, software_version TEXT""",
     "chart_points": """check_id BIGINT, instrument_id TEXT, level DOUBLE, baseline_period INTEGER,
         measured_at TIMESTAMP, z DOUBLE, moving_range DOUBLE, cusum_upper DOUBLE, cusum_lower DOUBLE,
-        ewma DOUBLE, ewma_lcl DOUBLE, ewma_ucl DOUBLE, center DOUBLE, sigma DOUBLE, ind_lcl DOUBLE,
-        ind_ucl DOUBLE, mr_ucl DOUBLE""",
+        ewma DOUBLE, ewma_ucl DOUBLE, center DOUBLE, sigma DOUBLE""",
+    "chart_runs": """run_id BIGINT, started_at TIMESTAMP, duration_s DOUBLE, mode TEXT, n_new_checks BIGINT,
+        n_groups BIGINT, n_signals BIGINT, n_baselines BIGINT, parameters TEXT, software_version TEXT,
+        ind_lcl DOUBLE, ind_ucl DOUBLE, mr_ucl DOUBLE""",
     "chart_signals": """signal_id BIGINT, instrument_id TEXT, level DOUBLE, check_id BIGINT,
         measured_at TIMESTAMP, chart TEXT, rule TEXT, direction TEXT, size DOUBLE, onset_at TIMESTAMP,
         impact_checks BIGINT, fleet_significant BOOLEAN, created_at TIMESTAMP""",
@@ -170,8 +172,7 @@ def _fill_charts(con, checks: pd.DataFrame, units: pd.DataFrame) -> None:
                           "measured_at": g["measured_at"], "position": range(1, len(g) + 1),
                           "relative_error": g["re"], "sigma_source": "unit", "cusum_upper_run": 0,
                           "cusum_lower_run": 0, "z": z, "moving_range": mr, "cusum_upper": up,
-                          "cusum_lower": lo, "ewma": ew, "ewma_lcl": -2.86 * 0.577, "ewma_ucl": 2.86 * 0.577,
-                          "center": center, "sigma": sigma, "ind_lcl": -3.0, "ind_ucl": 3.0, "mr_ucl": 3.686})
+                          "cusum_lower": lo, "ewma": ew, "ewma_ucl": 2.86 * 0.577, "center": center, "sigma": sigma})
         frames.append(f)
         baselines.append({"baseline_id": len(baselines), "instrument_id": unit, "level": level,
                           "baseline_period": 0, "version": 1, "frozen_at": g["measured_at"].iloc[min(19, len(g) - 1)],
@@ -193,6 +194,10 @@ def _fill_charts(con, checks: pd.DataFrame, units: pd.DataFrame) -> None:
                         "direction": "up", "size": 1.2, "onset_at": last - pd.Timedelta(days=i + 5),
                         "impact_checks": 4, "fleet_significant": False, "created_at": last})
     _insert(con, "chart_points", pd.concat(frames))
+    _insert(con, "chart_runs", pd.DataFrame([{
+        "run_id": 1, "started_at": checks["measured_at"].max(), "duration_s": 1.0, "mode": "full",
+        "n_new_checks": sum(map(len, frames)), "n_groups": len(frames), "n_signals": 0, "n_baselines": len(baselines),
+        "parameters": "{}", "software_version": "0.1.0", "ind_lcl": -3.0, "ind_ucl": 3.0, "mr_ucl": 3.686}]))
     _insert(con, "chart_baselines", pd.DataFrame(baselines))
     _insert(con, "chart_signals", pd.DataFrame(signals))
 

@@ -47,8 +47,8 @@ def add_checks(con, checks: pd.DataFrame) -> None:
     con.unregister("c")
 
 
-POINT_COLS = ["check_id", "position", "z", "moving_range", "cusum_upper", "cusum_lower", "ewma", "ewma_lcl",
-              "ewma_ucl", "center", "sigma", "cusum_upper_run", "cusum_lower_run"]
+POINT_COLS = ["check_id", "position", "z", "moving_range", "cusum_upper", "cusum_lower", "ewma", "ewma_ucl",
+              "center", "sigma", "cusum_upper_run", "cusum_lower_run"]
 
 
 def points(con) -> pd.DataFrame:
@@ -98,6 +98,13 @@ def test_incremental_equals_full_recompute():
     sa = full.execute("SELECT check_id, chart, rule, direction FROM chart_signals ORDER BY ALL").fetchall()
     sb = inc.execute("SELECT check_id, chart, rule, direction FROM chart_signals ORDER BY ALL").fetchall()
     assert sa == sb
+    # signal ids stay unique over three runs (chart_signals has no key index: analyse numbers them)
+    assert inc.execute("SELECT count(DISTINCT signal_id) = count(*) FROM chart_signals").fetchone()[0]
+    # every run records the individuals and moving-range limits its points use (z units); the
+    # moving-range limit is D4 * d2 = d2 + 3 d3 for n = 2: 1.1284 + 3 * 0.8525 = 3.686 (d2, d3 as tabled
+    # in Montgomery, Introduction to Statistical Quality Control, Appendix VI; values from memory)
+    limits = inc.execute("SELECT DISTINCT ind_lcl, ind_ucl, round(mr_ucl, 3) FROM chart_runs").fetchall()
+    assert limits == [(-3.0, 3.0, 3.686)]
 
 
 def test_baseline_frozen_when_later_data_arrive():

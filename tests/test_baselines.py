@@ -19,7 +19,7 @@ def test_pooled_sigma_recovers_simulated_repeatability():
     gid = np.repeat(np.arange(200), 25)
     frame = pd.DataFrame({"technology": "fuel_cell", "standard_kind": "wet_bath", "level": 0.08, "gid": gid,
                           "relative_error": rng.normal(0, 0.012, len(gid)) + np.repeat(rng.normal(0, 0.02, 200), 25)})
-    got = pooled_sigma(frame)
+    got = pooled_sigma(frame, group_starts(gid))
     # common practice: MR-bar / d2 estimates the within-unit sigma, unaffected by unit offsets
     assert abs(got["sigma"].iloc[0] / 0.012 - 1) < 0.05
 

@@ -171,7 +171,7 @@ def test_pooled_sigma_equals_plain_groupby():
     frame = pd.DataFrame({"technology": rng.choice(["fuel_cell", "infrared"], 120)[gid],
                           "standard_kind": rng.choice(["wet_bath", "dry_gas"], len(gid)), "level": 0.08, "gid": gid,
                           "relative_error": rng.normal(0, 0.01, len(gid))})
-    got = pooled_sigma(frame).set_index(["technology", "standard_kind", "level"])
+    got = pooled_sigma(frame, group_starts(gid)).set_index(["technology", "standard_kind", "level"])
     mr = frame.groupby("gid")["relative_error"].diff().abs()
     ref = frame.assign(mr=mr).dropna().groupby(["technology", "standard_kind", "level"])["mr"].agg(["mean", "size"])
     # Montgomery 6.4: sigma = MR-bar / d2(2), d2(2) = 1.128 (ours computed)

@@ -31,7 +31,7 @@ from pipeline.charts.xbar_s import xbar_s_groups
 from pipeline.charts.individuals import moving_range, mr_ucl_standardised
 from pipeline.charts.run_rules import RULES, apply_run_rules, select_rules
 from pipeline.charts.signals import fleet_significance, impact_checks, signal_p_values
-from pipeline.db import sql_text, transaction
+from pipeline.db import ANALYSE_MEMORY_LIMIT, memory_limit, sql_text, transaction
 from pipeline.settings import Settings
 
 KEY = ["instrument_id", "level", "baseline_period"]
@@ -90,17 +90,18 @@ def pooled_lookup(frame: pd.DataFrame, pooled: pd.DataFrame, rows: np.ndarray | 
 
 
 def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, own: pd.DataFrame,
-                   pooled: pd.DataFrame, params: dict) -> dict:
+                   pooled: pd.DataFrame, params: dict, *, starts: np.ndarray | None = None) -> dict:
     """Pure chart computation for new checks of many groups (no database access).
 
     new: new checks (KEY, check_id, measured_at, check_type, relative_error, technology, standard_kind),
       sorted by KEY then time. tail: stored points (KEY, check_id, measured_at, relative_error, position)
       of the same groups. state: chart_state rows; own: stored own baselines (KEY, center, sigma);
       pooled: technology, standard_kind, level, sigma. Returns points (the lower EWMA limit is the upper one
-      negated, written by the insert), limits (the constant individuals and moving-range limits of
-      every point), signals, baselines, state frames and check_type.
+      negated: readers compute it), limits (the constant individuals and moving-range limits of
+      every point, recorded with the run), signals, baselines, state frames and check_type.
     Every statistic works on the arrays of all groups back to back (grouping.Segments computed once);
     in a full run (no tail) the new rows are the frame, so nothing is copied to select them.
+    starts: _starts(new), when the caller has it (used when there is no tail).
     """
     n_min = int(params["own_baseline_min_checks"])
     k, h = params["cusum"]["k"], params["cusum"]["h"]
@@ -133,7 +134,8 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
 
     def unit_of(idx):
         return pd.Categorical.from_codes(inst_codes[idx] if idx is not None else inst_codes, categories=inst_names)
-    starts = _starts(frame)
+    if has_old or starts is None:
+        starts = _starts(frame)
     seg = Segments.from_starts(starts)
     gid, pos0 = seg.gid, seg.pos
     n_groups = seg.n_groups
@@ -308,8 +310,8 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
         "cusum_upper": cus.upper[last], "cusum_lower": cus.lower[last],
         "cusum_upper_run": run_u[last], "cusum_lower_run": run_l[last], "ewma": ew.ewma[last],
         "last_measured_at": points["measured_at"].to_numpy()[last], "last_check_id": points["check_id"].to_numpy()[last]})
-    # The individuals and moving-range limits are the same for every point (z units): stored as
-    # constants rather than as three columns of millions of equal values.
+    # The individuals and moving-range limits are the same for every point (z units): recorded
+    # once with the run (chart_runs) rather than as three columns of millions of equal values.
     return {"points": points, "limits": {"ind_lcl": -3.0, "ind_ucl": 3.0, "mr_ucl": mr_limit},
             "signals": signals, "baselines": baselines, "state": new_state,
             "check_type": frame["check_type"].array[new_idx] if has_old else frame["check_type"].array}
@@ -379,9 +381,9 @@ def read_chart_input(con: duckdb.DuckDBPyConnection, with_rebaselines: bool, thr
         "baseline_period": raw["baseline_period"]}, copy=False)
 
 
-def _group_keys(new: pd.DataFrame) -> pd.DataFrame:
-    """The chart groups (KEY) of checks sorted by KEY, in order."""
-    return new[KEY].iloc[np.flatnonzero(_starts(new))].reset_index(drop=True)
+def _group_keys(new: pd.DataFrame, starts: np.ndarray) -> pd.DataFrame:
+    """The chart groups (KEY) of checks sorted by KEY, in order (starts: _starts(new))."""
+    return new[KEY].iloc[np.flatnonzero(starts)].reset_index(drop=True)
 
 
 def _sort_codes(col: pd.Series) -> np.ndarray:
@@ -421,6 +423,11 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
     charted check is charted again from its segment start (its frozen baselines are kept).
     Returns an AnalysisRun with counts, duration and the parameters used.
     """
+    with memory_limit(con, ANALYSE_MEMORY_LIMIT):
+        return _analyse(con, settings)
+
+
+def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
     from pipeline.standards import sync_standards_settings
 
     t0 = time.perf_counter()
@@ -441,7 +448,8 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
     recharge = {r[0] for r in con.execute("SELECT DISTINCT instrument_id FROM chart_rebaselines WHERE recorded_at >= $t",
                                           {"t": last_run_at or datetime(1900, 1, 1)}).fetchall()}
     new = read_chart_input(con, with_rb, through, recharge)
-    state, own, tail = _load_state(con, _group_keys(new))
+    starts = _starts(new)
+    state, own, tail = _load_state(con, _group_keys(new, starts))
     if len(state):
         late = new.merge(state[KEY + ["last_measured_at"]], on=KEY)
         late = late.loc[late["measured_at"] < late["last_measured_at"], KEY].drop_duplicates()
@@ -458,19 +466,19 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
                 con.unregister("_bf_late")
             recharge |= set(late["instrument_id"].astype(str))
             new = read_chart_input(con, with_rb, through, recharge)
-            state, own, tail = _load_state(con, _group_keys(new))
+            starts = _starts(new)
+            state, own, tail = _load_state(con, _group_keys(new, starts))
     pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
     t_read = time.perf_counter() - t0
     missing = np.isnan(pooled_lookup(new, pooled)) if len(pooled) else np.ones(len(new), dtype=bool)
     if missing.any():
         sub = new[missing] if not missing.all() else new
-        sub = pd.DataFrame({c: sub[c].array for c in ("technology", "standard_kind", "level", "relative_error")}
-                           | {"gid": _starts(sub).cumsum()}, copy=False)
-        fresh = pooled_sigma(sub).assign(frozen_at=started, method=POOLED_METHOD)
+        fresh = pooled_sigma(sub, starts if sub is new else _starts(sub)).assign(frozen_at=started,
+                                                                                 method=POOLED_METHOD)
         con.execute("INSERT INTO chart_pooled_sigma SELECT technology, standard_kind, level, sigma, n_pairs, "
                     "frozen_at, method FROM fresh")
         pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
-    out = compute_charts(new, tail, state, own, pooled, params)
+    out = compute_charts(new, tail, state, own, pooled, params, starts=starts)
     window = settings.charts.replicate_window_minutes
     pts = out["points"]
     typed = pd.DataFrame({c: pts[c].array for c in ("check_id", "instrument_id", "level", "measured_at", "z")}
@@ -534,8 +542,7 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
     t_compute = time.perf_counter() - t0 - t_read
     with transaction(con):
         con.register("_bf_points", pa.Table.from_pandas(pts, preserve_index=False))  # Arrow: no copy
-        con.execute("INSERT INTO chart_points BY NAME SELECT *, -ewma_ucl AS ewma_lcl, $ind_lcl AS ind_lcl, "
-                    "$ind_ucl AS ind_ucl, $mr_ucl AS mr_ucl FROM _bf_points", out["limits"])
+        con.execute("INSERT INTO chart_points BY NAME SELECT * FROM _bf_points")
         con.unregister("_bf_points")
         con.register("_bf_state", st)
         con.execute("DELETE FROM chart_state t USING _bf_state s WHERE t.instrument_id = s.instrument_id "
@@ -562,11 +569,12 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
             con.unregister("_bf_lin")
         duration = time.perf_counter() - t0
         con.execute("INSERT INTO chart_runs (run_id, started_at, duration_s, mode, n_new_checks, n_groups, n_signals, "
-                    "n_baselines, data_end, parameters, software_version, checks_through, checks_counted) "
-                    "VALUES ($id, $at, $d, $mode, $n, $g, $s, $b, $end, $p, $v, $through, $counted)",
+                    "n_baselines, data_end, parameters, software_version, checks_through, checks_counted, ind_lcl, ind_ucl, "
+                    "mr_ucl) VALUES ($id, $at, $d, $mode, $n, $g, $s, $b, $end, $p, $v, $through, $counted, $ind_lcl, "
+                    "$ind_ucl, $mr_ucl)",
                     {"id": run_id, "at": started, "d": duration, "mode": mode, "n": len(pts), "g": len(st),
                      "s": len(sig), "b": len(bl), "end": data_end, "p": json.dumps(params, default=str),
-                     "v": SOFTWARE_VERSION, "through": top, "counted": n_top})
+                     "v": SOFTWARE_VERSION, "through": top, "counted": n_top} | out["limits"])
     return AnalysisRun(run_id=run_id, mode=mode, n_new_checks=len(pts), n_groups=len(st), n_signals=len(sig),
                        n_baselines=len(bl), duration_s=duration, parameters=params, data_end=data_end,
                        timings={"read": t_read, "compute": t_compute, "store": duration - t_read - t_compute})

@@ -17,22 +17,22 @@ import numpy as np
 import pandas as pd
 
 from pipeline.charts.constants import shewhart_constants
-from pipeline.charts.grouping import Segments, group_starts, key_runs
+from pipeline.charts.grouping import Segments, key_runs
 from pipeline.charts.individuals import moving_range
 
 POOLED_METHOD = "pooled MR-bar / d2(2) over consecutive checks of each unit segment (Montgomery 6.4)"
 
 
-def pooled_sigma(frame: pd.DataFrame, min_pairs: int = 30) -> pd.DataFrame:
+def pooled_sigma(frame: pd.DataFrame, starts: np.ndarray, min_pairs: int = 30) -> pd.DataFrame:
     """Pooled repeatability per technology, standard kind and level from consecutive checks.
 
-    frame: columns technology, standard_kind, level, gid (segment code), relative_error, sorted by gid then time.
-    Returns one row per key: technology, standard_kind, level, sigma, n_pairs. Keys with fewer than
+    frame: columns technology, standard_kind, level, relative_error, sorted by segment then time;
+    starts: True at each segment's first row. Returns one row per key: technology, standard_kind, level, sigma, n_pairs. Keys with fewer than
     `min_pairs` moving ranges take the median sigma of their technology (or of the fleet).
     """
     key = ["technology", "standard_kind", "level"]
     x = frame["relative_error"].to_numpy(dtype=float)
-    mr = moving_range(x, group_starts(frame["gid"].to_numpy()))
+    mr = moving_range(x, starts)
     d2 = shewhart_constants(2).d2
     # One integer code per (technology, standard kind, level), numbered in order of appearance, for
     # each run of rows with one key; sums per run, then per key.
