@@ -21,7 +21,7 @@ from pipeline.db import migrate, publish_snapshot
 CONTRACT_TABLES = {
     "chart_baselines": """baseline_id BIGINT, instrument_id TEXT, level DOUBLE, baseline_period INTEGER,
         version INTEGER, frozen_at TIMESTAMP, reason TEXT, sigma_source TEXT, center DOUBLE, sigma DOUBLE,
-        n_checks BIGINT, parameters TEXT, software_version TEXT""",
+        n_checks BIGINT, parameters TEXT, software_version TEXT, run_id BIGINT""",
     "chart_points": """check_id BIGINT, instrument_id TEXT, level DOUBLE, baseline_period INTEGER,
         measured_at TIMESTAMP, z DOUBLE, moving_range DOUBLE, cusum_upper DOUBLE, cusum_lower DOUBLE,
         ewma DOUBLE, ewma_ucl DOUBLE, center DOUBLE, sigma DOUBLE""",

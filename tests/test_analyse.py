@@ -2,13 +2,15 @@
 
 from __future__ import annotations
 
+import json
+
 import duckdb
 import numpy as np
 import pandas as pd
 import pytest
 
 from pipeline.charts.analyse import analyse_fleet
-from pipeline.db import migrate
+from pipeline.db import migrate, sql_text
 from pipeline.settings import Settings
 
 COLUMNS = ["check_id", "instrument_id", "measured_at", "lot_id", "check_type", "target", "measured", "units",
@@ -64,6 +66,11 @@ def test_analyse_stores_points_baselines_and_signals():
     # two versions per segment: fleet pooled at the first check, the unit's own after 20 checks
     got = con.execute("SELECT version, sigma_source, count(*) FROM chart_baselines GROUP BY ALL ORDER BY 1").fetchall()
     assert got == [(1, "fleet_pooled", 30), (2, "unit", 30)]
+    # each baseline's parameters are its run's: the unit page reads the run's CUSUM design through it
+    rows = con.execute(sql_text("queries/dashboard_unit_baselines"), {"instrument_id": "U000"}).df()
+    assert len(rows) == 2 and con.execute("SELECT count(*) FROM chart_baselines WHERE run_id = $r",
+                                          {"r": run.run_id}).fetchone()[0] == 60
+    assert {json.loads(p)["cusum"]["h"] for p in rows["parameters"]} == {run.parameters["cusum"]["h"]}
     # the shifted unit raises an upper CUSUM signal with an onset and an impact window
     sig = con.execute("SELECT * FROM chart_signals WHERE instrument_id = 'U000' AND chart = 'cusum'").df()
     assert (sig["direction"] == "up").any()

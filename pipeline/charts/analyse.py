@@ -528,8 +528,8 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
     first_sig = int(con.execute("SELECT coalesce(max(signal_id), 0) + 1 FROM chart_signals").fetchall()[0][0])
     first_b = int(con.execute("SELECT coalesce(max(baseline_id), 0) + 1 FROM chart_baselines").fetchall()[0][0])
     bl = out["baselines"]
-    bl = bl.assign(baseline_id=np.arange(first_b, first_b + len(bl)), parameters=json.dumps(params, default=str),
-                   software_version=SOFTWARE_VERSION)
+    # A baseline's parameters are its run's (chart_runs.parameters), stored once with the run.
+    bl = bl.assign(baseline_id=np.arange(first_b, first_b + len(bl)), run_id=run_id, software_version=SOFTWARE_VERSION)
     rb = (bl["version"] == 1) & (bl["baseline_period"] % 1000 != 0)
     if rb.any():
         con.register("_bf_rb", bl.loc[rb, ["instrument_id", "frozen_at"]].reset_index())
