@@ -114,6 +114,32 @@ def test_incremental_equals_full_recompute():
     assert limits == [(-3.0, 3.0, 3.686)]
 
 
+def test_late_checks_chart_their_groups_again():
+    # U001 checks in replicate pairs; four of its pairs (after its own baseline is set) arrive late,
+    # with check ids above every charted one: its groups are charted again and equal a full run's
+    base = fleet_checks(n_units=3, n=60, seed=4)
+    rep = base[base["instrument_id"] == "U001"].assign(measured_at=lambda d: d["measured_at"] + pd.Timedelta(minutes=5))
+    checks = pd.concat([base, rep], ignore_index=True).sort_values(["instrument_id", "measured_at"], kind="stable")
+    checks = checks.assign(check_id=np.arange(1, len(checks) + 1), line=np.arange(1, len(checks) + 1))
+    late_from = pd.Timestamp("2025-01-01") + pd.Timedelta(hours=12 * 40)
+    late = (checks["instrument_id"] == "U001") & checks["measured_at"].between(late_from, late_from + pd.Timedelta(days=2))
+    full = make_db(checks)
+    seed_pooled(full)
+    analyse_fleet(full, Settings())
+    inc = make_db(checks[~late])
+    seed_pooled(inc)
+    analyse_fleet(inc, Settings())
+    add_checks(inc, checks[late].assign(check_id=lambda d: d["check_id"] + 10_000))
+    run = analyse_fleet(inc, Settings())
+    assert run.mode == "incremental" and run.n_new_checks > late.sum()  # the unit's later checks too
+    ids = "CASE WHEN check_id > 10000 THEN check_id - 10000 ELSE check_id END"
+    for table, cols in (("chart_points", "z, cusum_upper, cusum_lower, ewma, position"),
+                        ("chart_signals", "chart, rule, direction"), ("chart_groups", "n, xbar, s")):
+        a = full.execute(f"SELECT check_id, {cols} FROM {table} ORDER BY ALL").df()
+        b = inc.execute(f"SELECT {ids} AS check_id, {cols} FROM {table} ORDER BY ALL").df()
+        pd.testing.assert_frame_equal(a, b, check_exact=False, rtol=1e-9, atol=1e-12, check_dtype=False)
+
+
 def test_baseline_frozen_when_later_data_arrive():
     checks = fleet_checks(n=60, seed=5)
     con = make_db(checks[checks["measured_at"] < pd.Timestamp("2025-01-20")])

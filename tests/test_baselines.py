@@ -61,3 +61,22 @@ def test_rebaseline_needs_reason_and_starts_new_segment():
                          "AND version = 1").fetchall()
     assert reason == [("rebaseline: lot change agreed by program",)]
     assert con.execute("SELECT count(*) FROM chart_points").fetchall()[0][0] == len(checks)
+
+
+def test_rebaseline_recomputes_replicate_groups():
+    # every check of unit U001 has a replicate 5 minutes later: X-bar/S groups of two checks
+    base = fleet_checks(n_units=3, n=40)
+    rep = base[base["instrument_id"] == "U001"].assign(measured_at=lambda d: d["measured_at"] + pd.Timedelta(minutes=5))
+    checks = pd.concat([base, rep], ignore_index=True).sort_values(["instrument_id", "measured_at"], kind="stable")
+    checks = checks.assign(check_id=np.arange(1, len(checks) + 1), line=np.arange(1, len(checks) + 1))
+    con = make_db(checks)
+    analyse_fleet(con, Settings())
+    record_rebaseline(con, "U001", pd.Timestamp("2025-01-10"), "sensor serviced")
+    analyse_fleet(con, Settings())
+    # each stored group's X-bar and S are those of its two checks' stored z (after the re-baseline too)
+    got = con.execute(
+        "SELECT g.check_id, g.n, g.xbar, g.s, (p.z + q.z) / 2 AS mean_z, abs(p.z - q.z) / sqrt(2) AS sd_z "
+        "FROM chart_groups g JOIN chart_points p ON p.check_id = g.check_id "
+        "JOIN chart_points q ON q.check_id = g.check_id - 1 ORDER BY 1").df()
+    assert len(got) == 40 and (got["n"] == 2).all()
+    assert np.allclose(got["xbar"], got["mean_z"], atol=1e-9) and np.allclose(got["s"], got["sd_z"], atol=1e-9)

@@ -457,8 +457,9 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
             con.register("_bf_late", late)
             try:
                 with transaction(con):
-                    con.execute("DELETE FROM chart_signals WHERE check_id IN (SELECT p.check_id FROM chart_points p "
-                                "JOIN _bf_late USING (instrument_id, level, baseline_period))")
+                    for table in ("chart_signals", "chart_groups"):  # of the points removed below
+                        con.execute(f"DELETE FROM {table} WHERE check_id IN (SELECT p.check_id FROM chart_points p "
+                                    "JOIN _bf_late USING (instrument_id, level, baseline_period))")
                     for table in ("chart_points", "chart_state"):
                         con.execute(f"DELETE FROM {table} t USING _bf_late l WHERE t.instrument_id = l.instrument_id "
                                     "AND t.level = l.level AND t.baseline_period = l.baseline_period")
@@ -561,7 +562,7 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
             con.unregister("_bf_sig")
         if len(groups):
             con.register("_bf_groups", groups.assign(run_id=run_id))
-            con.execute("INSERT OR IGNORE INTO chart_groups BY NAME SELECT * FROM _bf_groups")
+            con.execute("INSERT INTO chart_groups BY NAME SELECT * FROM _bf_groups")
             con.unregister("_bf_groups")
         if len(lin):
             con.register("_bf_lin", lin.assign(run_id=run_id))
