@@ -8,8 +8,11 @@ import duckdb
 import numpy as np
 import pandas as pd
 import pytest
+from scipy.stats import linregress
+from scipy.stats import t as t_dist
 
 from pipeline.charts.analyse import analyse_fleet
+from pipeline.check_results import refresh_check_results
 from pipeline.db import migrate, sql_text
 from pipeline.settings import Settings
 
@@ -178,3 +181,32 @@ def test_analyse_command_stores_and_publishes(tmp_path):
     assert snapshot_path(db).exists()
     missing = CliRunner().invoke(main, ["analyse", "--db", str(tmp_path / "none.duckdb")])
     assert missing.exit_code != 0 and "database file does not exist; ingest data first" in missing.output
+
+
+def test_linearity_of_a_verification_session_matches_linregress():
+    # U002 runs a verification session: two checks at each of 0.040, 0.080 and 0.160 within 30 minutes
+    checks = fleet_checks(n_units=3, n=40)
+    at = pd.Timestamp("2025-01-05 09:00")
+    targets = [0.040, 0.040, 0.080, 0.080, 0.160, 0.160]
+    measured = [0.041, 0.040, 0.081, 0.082, 0.164, 0.163]
+    ver = pd.DataFrame({"instrument_id": "U002", "measured_at": [at + pd.Timedelta(minutes=5 * i) for i in range(6)],
+                        "lot_id": [{0.04: "L2", 0.08: "L1", 0.16: "L3"}[t] for t in targets],
+                        "check_type": "verification", "target": targets, "measured": measured})
+    checks = pd.concat([checks, ver.assign(**{c: checks[c].iloc[0] for c in COLUMNS if c not in ver})],
+                       ignore_index=True).assign(check_id=lambda d: np.arange(1, len(d) + 1))[COLUMNS]
+    con = make_db(checks)
+    con.execute("INSERT INTO lots VALUES ('L2', 'dry_gas', 0.04, 'g/210L', 0.001, '2020-01-01', '2030-01-01', 'x'), "
+                "('L3', 'dry_gas', 0.16, 'g/210L', 0.001, '2020-01-01', '2030-01-01', 'x')")
+    refresh_check_results(con)  # expected values of the checks on the lots added after them
+    analyse_fleet(con, Settings())
+    got = con.execute("SELECT * FROM chart_linearity").df()
+    assert len(got) == 1 and got["instrument_id"].iloc[0] == "U002" and got["n_checks"].iloc[0] == 6
+    # scipy.stats.linregress (ordinary least squares) with 95 % t intervals on 4 degrees of freedom
+    ref = linregress(targets, measured)
+    tq = t_dist.ppf(0.975, 4)
+    row = got.iloc[0]
+    assert row["slope"] == pytest.approx(ref.slope, rel=1e-9)
+    assert row["intercept"] == pytest.approx(ref.intercept, abs=1e-12)
+    assert row["slope_high"] - row["slope"] == pytest.approx(tq * ref.stderr, rel=1e-6)
+    assert row["intercept_high"] - row["intercept"] == pytest.approx(tq * ref.intercept_stderr, rel=1e-6)
+    assert bool(row["proportional_bias"]) == (abs(ref.slope - 1) > tq * ref.stderr)

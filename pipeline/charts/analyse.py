@@ -375,10 +375,24 @@ def read_chart_input(con: duckdb.DuckDBPyConnection, with_rebaselines: bool, thr
         "check_id": raw["check_id"], "instrument_id": cat(raw["unit_code"], names["_bf_units"]),
         "level": raw["level"], "measured_at": raw["measured_at"],
         "check_type": cat(raw["check_type_code"], CHECK_TYPES),
-        "relative_error": raw["relative_error"], "expected": raw["expected"], "measured": raw["measured"],
+        "relative_error": raw["relative_error"],
         "technology": cat(raw["technology_code"], names["_bf_technologies"]),
         "standard_kind": cat(raw["kind_code"], names["_bf_kinds"]),
         "baseline_period": raw["baseline_period"]}, copy=False)
+
+
+def read_verification_checks(con: duckdb.DuckDBPyConnection, new: pd.DataFrame) -> pd.DataFrame:
+    """The verification checks among `new` (chart input rows) with their expected and measured
+    values (sql/queries/charts_verification_values.sql): instrument_id, measured_at, level,
+    expected, measured, for the linearity fit."""
+    ver = new.loc[(new["check_type"] == "verification").to_numpy(), ["check_id", "instrument_id", "measured_at", "level"]]
+    con.register("_bf_verification", ver[["check_id"]])
+    try:
+        values = con.execute(sql_text("queries/charts_verification_values")).fetchnumpy()
+    finally:
+        con.unregister("_bf_verification")
+    at = np.searchsorted(values["check_id"], ver["check_id"].to_numpy())
+    return ver.assign(expected=values["expected"][at], measured=values["measured"][at])
 
 
 def _group_keys(new: pd.DataFrame, starts: np.ndarray) -> pd.DataFrame:
@@ -469,6 +483,7 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
             new = read_chart_input(con, with_rb, through, recharge)
             starts = _starts(new)
             state, own, tail = _load_state(con, _group_keys(new, starts))
+    ver = read_verification_checks(con, new)
     pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
     t_read = time.perf_counter() - t0
     missing = np.isnan(pooled_lookup(new, pooled)) if len(pooled) else np.ones(len(new), dtype=bool)
@@ -497,8 +512,6 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
                 extra.append(signal_frame(base, hit, chart, "limit",
                                           np.where(value[hit] > groups[hi].to_numpy()[hit], "up", "down"), value[hit]))
     sig = pd.concat([out["signals"], *extra], ignore_index=True) if extra else out["signals"]
-    ver = new.loc[(new["check_type"] == "verification").to_numpy(),
-                  ["instrument_id", "measured_at", "expected", "measured", "level"]]
     lin = fit_linearity(ver, settings.charts.verification_window_minutes)
     run_id = int(con.execute("SELECT coalesce(max(run_id), 0) + 1 FROM chart_runs").fetchall()[0][0])
     if len(sig):

@@ -8,7 +8,8 @@
 -- $through: checks with a check_id at or below it are charted already, except those of the units
 -- in _bf_recharge (their points were removed to chart them again). The two are read as separate
 -- branches so that the check_id condition can skip the stored row groups below $through.
--- Codes come back as the narrowest integers (less to convert for millions of rows).
+-- Codes come back as the narrowest integers (less to convert for millions of rows). The expected
+-- and measured values of verification checks are read apart (charts_verification_values.sql).
 WITH picked AS (
     SELECT * FROM check_results WHERE check_id > $through
     UNION ALL
@@ -22,7 +23,7 @@ WITH picked AS (
 )
 SELECT r.check_id, u.unit_code, r.level, r.measured_at,
        CAST(CASE r.check_type WHEN 'control' THEN 0 WHEN 'daily' THEN 1 ELSE 2 END AS TINYINT) AS check_type_code,
-       r.relative_error, r.expected, r.measured,
+       r.relative_error,
        CAST(t.code AS SMALLINT) AS technology_code, CAST(k.code AS SMALLINT) AS kind_code,
        CAST(r.baseline_period * 1000 + {segment_offset} AS INTEGER) AS baseline_period
 FROM picked r
