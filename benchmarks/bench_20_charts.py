@@ -52,6 +52,7 @@ import pandas as pd
 
 OUT = Path(__file__).resolve().parent.parent / "bench-output"
 SAMPLE_UNITS = 50
+ROUNDS = 3
 WE_RULES = ("WE1", "WE2", "WE3", "WE4")
 
 
@@ -361,36 +362,58 @@ def main() -> None:
     con.execute("CHECKPOINT")
     t_refresh = time.perf_counter() - t0
     con.close()
-    full, t_full = _analyse_in_new_process(work)
-    con = open_database(work)
-    through = con.execute("SELECT checks_through FROM chart_runs WHERE run_id = $r", {"r": full.run_id}).fetchone()[0]
+    prepared = OUT / "charts-prepared.duckdb"
+    shutil.copyfile(work, prepared)
+    cs = settings.charts
+    params = chart_parameters(settings)
+    # Rounds: the full run on a fresh copy of the prepared fleet, then the loop on its sample, so
+    # that each ratio compares two timings taken minutes apart (the host's speed drifts).
+    rounds = []
+    for i in range(ROUNDS):
+        if i:
+            shutil.copyfile(prepared, work)
+        full, t_full = _analyse_in_new_process(work)
+        con = open_database(work)
+        if not i:
+            through = con.execute("SELECT checks_through FROM chart_runs WHERE run_id = $r",
+                                  {"r": full.run_id}).fetchone()[0]
+            frame, controls, units = _sample(con, full.run_id, through)
+        t0 = time.perf_counter()
+        loop = loop_charts(frame, controls, params, cs.replicate_window_minutes, cs.verification_window_minutes,
+                           cs.fleet_fdr_q)
+        t_sample = time.perf_counter() - t0
+        if not i:
+            agreement = _compare(con, loop, full.run_id, through, units)
+        con.close()
+        tm = full.timings
+        loop_work = t_sample * full.n_new_checks / max(len(frame), 1)
+        rounds.append({"full": t_full, "read": tm["read"], "compute": tm["compute"], "store": tm["store"],
+                       "sample": t_sample, "loop_work": loop_work, "loop": tm["read"] + loop_work + tm["store"]})
     # The week arrives as an ingest delivers it: new check ids above every stored one. The
     # incremental time includes bringing check_results up to date for it.
+    con = open_database(work)
     con.execute("UPDATE _bench_week SET check_id = check_id + (SELECT max(check_id) FROM checks)")
     con.execute("INSERT INTO checks SELECT * FROM _bench_week")
     con.close()
     inc, t_inc = _analyse_in_new_process(work)
-    con = open_database(work)
-    # The loop baseline on a sample of units: the same checks as the full run, scaled up by checks.
-    frame, controls, units = _sample(con, full.run_id, through)
-    cs = settings.charts
-    params = chart_parameters(settings)
-    t0 = time.perf_counter()
-    loop = loop_charts(frame, controls, params, cs.replicate_window_minutes, cs.verification_window_minutes,
-                       cs.fleet_fdr_q)
-    t_loop_sample = time.perf_counter() - t0
-    agreement = _compare(con, loop, full.run_id, through, units)
-    con.close()
-    tm = full.timings
-    t_loop_work = t_loop_sample * full.n_new_checks / max(len(frame), 1)
-    t_loop = tm["read"] + t_loop_work + tm["store"]
+    prepared.unlink()
+
+    def med(values):
+        return float(np.median(values)), min(values), max(values)
     print(f"fleet: {full.n_new_checks + inc.n_new_checks:,} charted checks, {full.n_groups:,} chart groups ({src.name})")
-    print(f"full run:        {t_full:8.2f} s  ({full.n_new_checks:,} checks, {full.n_signals:,} signals)   target < 30 s")
-    print(f"full run parts:  read {tm['read']:.2f} s, compute {tm['compute']:.2f} s, store {tm['store']:.2f} s")
-    print(f"per-unit loop:   {t_loop:8.1f} s  (engine read + store {tm['read'] + tm['store']:.1f} s + loop work "
-          f"{t_loop_work:.1f} s: sample of {len(units)} units, {len(frame):,} checks in {t_loop_sample:.2f} s, scaled)")
-    print(f"speed-up:        {t_loop / t_full:8.1f} x end to end   target >= 50 x;"
-          f" work only {t_loop_work / tm['compute']:.1f} x (loop work / engine compute)")
+    for i, r in enumerate(rounds, 1):
+        print(f"round {i}: full run {r['full']:6.2f} s (read {r['read']:.2f}, compute {r['compute']:.2f}, "
+              f"store {r['store']:.2f}); loop sample {r['sample']:.2f} s -> loop {r['loop']:.1f} s; "
+              f"{r['loop'] / r['full']:.1f} x end to end, {r['loop_work'] / r['compute']:.1f} x work only")
+    full_s = med([r["full"] for r in rounds])
+    e2e = med([r["loop"] / r["full"] for r in rounds])
+    work_only = med([r["loop_work"] / r["compute"] for r in rounds])
+    print(f"full run:        {full_s[0]:8.2f} s median of {ROUNDS} ({full_s[1]:.2f}-{full_s[2]:.2f}; "
+          f"{full.n_new_checks:,} checks, {full.n_signals:,} signals)   target < 30 s")
+    print(f"per-unit loop:   engine read + store + loop work (sample of {len(units)} units, {len(frame):,} checks, "
+          "scaled up by checks)")
+    print(f"speed-up:        {e2e[0]:8.1f} x end to end, median ({e2e[1]:.1f}-{e2e[2]:.1f})   target >= 50 x;"
+          f" work only {work_only[0]:.1f} x ({work_only[1]:.1f}-{work_only[2]:.1f}; loop work / engine compute)")
     print(f"loop vs engine on the sample: {agreement}")
     ti = inc.timings
     print(f"incremental week:{t_inc:8.2f} s  ({inc.n_new_checks:,} checks; read {ti['read']:.2f} s incl. check_results "
@@ -398,7 +421,6 @@ def main() -> None:
     print(f"(not timed above: a process compiling or loading the engine's kernels took {t_kernels:.1f} s; "
           f"check_results brought in line with the trimmed checks and checkpointed in {t_refresh:.1f} s, "
           "work that ingest does)")
-
 
 if __name__ == "__main__":
     main()
