@@ -442,6 +442,7 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
 
 
 def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
+    """analyse_fleet's run: read, compute, store (timed in those three parts)."""
     from pipeline.standards import sync_standards_settings
 
     t0 = time.perf_counter()
