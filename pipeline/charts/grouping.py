@@ -17,13 +17,12 @@ class Segments:
     """The group structure of a sorted array, computed once and shared by every statistic.
 
     starts: True at each group's first row; start_idx: those rows; gid: 0-based group number of
-    each row; first: the first row of each row's group; pos: 0-based position inside the group.
+    each row; pos: 0-based position inside the group.
     """
 
     starts: np.ndarray
     start_idx: np.ndarray
     gid: np.ndarray
-    first: np.ndarray
     pos: np.ndarray
 
     @classmethod
@@ -36,10 +35,9 @@ class Segments:
         start_idx = np.flatnonzero(starts)
         lengths = np.diff(np.append(start_idx, n))
         gid = np.repeat(np.arange(len(start_idx)), lengths)
-        first = np.repeat(start_idx, lengths)
         pos = np.arange(n)
-        pos -= first  # in place: at fleet scale every temporary array costs more than the arithmetic
-        return cls(starts=starts, start_idx=start_idx, gid=gid, first=first, pos=pos)
+        pos -= np.repeat(start_idx, lengths)  # in place: at fleet scale temporaries cost more than arithmetic
+        return cls(starts=starts, start_idx=start_idx, gid=gid, pos=pos)
 
     @property
     def n_groups(self) -> int:
@@ -82,16 +80,6 @@ def grouped_cumsum(values: np.ndarray, starts: np.ndarray, *, seg: Segments | No
     before = total[seg.start_idx] - head  # the global sum before each group
     total -= before[seg.gid]
     return total
-
-
-def grouped_last_true(flags: np.ndarray, starts: np.ndarray, *, seg: Segments | None = None) -> np.ndarray:
-    """Index of the latest row at or before each row (same group) where flags is True; -1 if none.
-
-    seg: Segments.from_starts(starts), when the caller has it already."""
-    idx = np.arange(len(flags))
-    first = np.maximum.accumulate(np.where(starts, idx, 0)) if seg is None else seg.first
-    last = np.maximum.accumulate(np.where(flags, idx, -1))
-    return np.where(last >= first, last, -1)
 
 
 def grouped_lag(values: np.ndarray, starts: np.ndarray, lag: int = 1, fill: float = np.nan, *,
