@@ -5,7 +5,8 @@
 -- moving-range limits (z units, the same for every point: chart_runs records the limits each run
 -- used). chart_signals loses its primary-key index: analyse alone writes signals, under DuckDB's
 -- single-writer lock, and numbers them max(signal_id) + 1 onwards (tests/test_analyse.py checks
--- they stay unique). Same columns otherwise as 042.
+-- they stay unique). Same columns as before (nullable now: analyse writes every
+-- field, and tests/test_analyse.py reads them back).
 ALTER TABLE chart_runs ADD COLUMN IF NOT EXISTS ind_lcl DOUBLE;   -- individuals limits, z units
 ALTER TABLE chart_runs ADD COLUMN IF NOT EXISTS ind_ucl DOUBLE;
 ALTER TABLE chart_runs ADD COLUMN IF NOT EXISTS mr_ucl DOUBLE;    -- moving-range upper limit, z units
@@ -15,23 +16,6 @@ ALTER TABLE chart_points DROP COLUMN ewma_lcl;
 ALTER TABLE chart_points DROP COLUMN ind_lcl;
 ALTER TABLE chart_points DROP COLUMN ind_ucl;
 ALTER TABLE chart_points DROP COLUMN mr_ucl;
-CREATE TABLE chart_signals_101 (
-    signal_id          BIGINT NOT NULL,
-    instrument_id      TEXT NOT NULL,
-    level              DOUBLE NOT NULL,
-    check_id           BIGINT NOT NULL,
-    measured_at        TIMESTAMP NOT NULL,
-    chart              TEXT NOT NULL,      -- individuals | moving_range | cusum | ewma | xbar | s
-    rule               TEXT NOT NULL,      -- WE1..WE4, N1..N8, h, limit
-    direction          TEXT NOT NULL,      -- up | down
-    size               DOUBLE NOT NULL,    -- the statistic at the signal (sigma units)
-    onset_at           TIMESTAMP,
-    impact_checks      BIGINT,             -- control checks of the unit from onset_at to the signal
-    p_value            DOUBLE,             -- in-control probability of a signal this early
-    fleet_significant  BOOLEAN,            -- Benjamini-Hochberg over the run's signals
-    run_id             BIGINT,
-    created_at         TIMESTAMP NOT NULL
-);
-INSERT INTO chart_signals_101 SELECT * FROM chart_signals;
+CREATE TABLE chart_signals_101 AS SELECT * FROM chart_signals;  -- same columns, no constraints
 DROP TABLE chart_signals;
 ALTER TABLE chart_signals_101 RENAME TO chart_signals;
