@@ -210,3 +210,20 @@ def test_linearity_of_a_verification_session_matches_linregress():
     assert row["slope_high"] - row["slope"] == pytest.approx(tq * ref.stderr, rel=1e-6)
     assert row["intercept_high"] - row["intercept"] == pytest.approx(tq * ref.intercept_stderr, rel=1e-6)
     assert bool(row["proportional_bias"]) == (abs(ref.slope - 1) > tq * ref.stderr)
+
+
+def test_a_failure_while_points_are_stored_rolls_the_run_back(monkeypatch):
+    # the points insert runs while the rest of the run is computed: a failure there stores nothing
+    import pipeline.charts.analyse as analyse_module
+
+    con = make_db(fleet_checks(n_units=3, n=40))
+
+    def fail(*args, **kwargs):
+        raise RuntimeError("injected failure")
+    monkeypatch.setattr(analyse_module, "_signals_groups_baselines", fail)
+    with pytest.raises(RuntimeError, match="injected"):
+        analyse_fleet(con, Settings())
+    assert [con.execute(f"SELECT count(*) FROM {t}").fetchone()[0] for t in ("chart_points", "chart_runs")] == [0, 0]
+    monkeypatch.undo()
+    run = analyse_fleet(con, Settings())
+    assert run.mode == "full" and con.execute("SELECT count(*) FROM chart_points").fetchone()[0] == 120
