@@ -29,11 +29,14 @@ engine's full run, in this process after it, and is scaled up by checks. It does
 store: it is given the sample's rows, the frozen pooled sigma and the units' control-check times
 (read before its clock starts). Its estimate for the fleet is therefore: the engine's own read
 and store times (the same SQL would serve the loop) + the loop's work scaled up. The engine's
+store time is what its inserts take after its compute part: its points insert overlaps the rest
+of its compute, so the loop is credited with that shorter store as well (in its favour). The engine's
 full-run figure includes everything, also computing the fleet pooled sigma, which the loop is
 given. The benchmark checks that the loop's results equal the engine's on the sample (points,
 signals with impact windows and p-values, baselines, X-bar/S groups, linearity) and prints the
 differences, so the two are known to do the same work. Printed ratios: end to end (loop estimate
-over the engine's full run) and work only (loop work over the engine's compute part).
+over the engine's full run) and work only (loop work over the engine's compute part, which now
+shares the two cores with the points insert).
 """
 
 from __future__ import annotations
