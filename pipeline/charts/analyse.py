@@ -431,6 +431,16 @@ def _load_state(con, keys: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame, pd
     return state, own, tail
 
 
+def _append(con: duckdb.DuckDBPyConnection, table: str, rows, *, or_ignore: bool = False) -> None:
+    """Insert a frame (or Arrow table) into `table` by column name."""
+    name = f"_bf_new_{table}"
+    con.register(name, rows)
+    try:
+        con.execute(f"INSERT {'OR IGNORE ' if or_ignore else ''}INTO {table} BY NAME SELECT * FROM {name}")
+    finally:
+        con.unregister(name)
+
+
 def _signals_groups_baselines(out: dict, ver: pd.DataFrame, params: dict, settings: Settings,
                               reader: duckdb.DuckDBPyConnection, run_id: int, first_b: int):
     """The rest of a run once the points are computed: X-bar/S groups and their signals, linearity,
@@ -571,36 +581,27 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
         with transaction(con):
             # The points are stored while the rest of the run is computed: DuckDB inserts on its own
             # threads without the GIL, and the two overlap (a full fleet run about 1 s shorter).
-            con.register("_bf_points", pa.Table.from_pandas(pts, preserve_index=False))  # Arrow: no copy
+            # Arrow tables: registered without a copy.
             with ThreadPoolExecutor(max_workers=1) as pool:
-                storing = pool.submit(con.execute, "INSERT INTO chart_points BY NAME SELECT * FROM _bf_points")
+                storing = pool.submit(_append, con, "chart_points", pa.Table.from_pandas(pts, preserve_index=False))
                 groups, lin, sig, bl = _signals_groups_baselines(out, ver, params, settings, reader, run_id, first_b)
                 t_compute = time.perf_counter() - t0 - t_read
             storing.result()
-            con.unregister("_bf_points")
-            con.register("_bf_state", st)
-            con.execute("DELETE FROM chart_state t USING _bf_state s WHERE t.instrument_id = s.instrument_id "
+            con.register("_bf_state_keys", st)
+            con.execute("DELETE FROM chart_state t USING _bf_state_keys s WHERE t.instrument_id = s.instrument_id "
                         "AND t.level = s.level AND t.baseline_period = s.baseline_period")
-            con.execute("INSERT INTO chart_state BY NAME SELECT * FROM _bf_state")
-            con.unregister("_bf_state")
+            con.unregister("_bf_state_keys")
+            _append(con, "chart_state", st)
             if len(bl):
-                con.register("_bf_bl", bl)
-                con.execute("INSERT INTO chart_baselines BY NAME SELECT * FROM _bf_bl")
-                con.unregister("_bf_bl")
+                _append(con, "chart_baselines", bl)
             if len(sig):
                 sig = sig.drop(columns=["position", "onset_back"]).assign(
                     signal_id=np.arange(first_sig, first_sig + len(sig)), run_id=run_id, created_at=started)
-                con.register("_bf_sig", pa.Table.from_pandas(sig, preserve_index=False))
-                con.execute("INSERT INTO chart_signals BY NAME SELECT * FROM _bf_sig")
-                con.unregister("_bf_sig")
+                _append(con, "chart_signals", pa.Table.from_pandas(sig, preserve_index=False))
             if len(groups):
-                con.register("_bf_groups", groups.assign(run_id=run_id))
-                con.execute("INSERT INTO chart_groups BY NAME SELECT * FROM _bf_groups")
-                con.unregister("_bf_groups")
-            if len(lin):
-                con.register("_bf_lin", lin.assign(run_id=run_id))
-                con.execute("INSERT OR IGNORE INTO chart_linearity BY NAME SELECT * FROM _bf_lin")
-                con.unregister("_bf_lin")
+                _append(con, "chart_groups", groups.assign(run_id=run_id))
+            if len(lin):  # a session charted again (late data) keeps its stored fit
+                _append(con, "chart_linearity", lin.assign(run_id=run_id), or_ignore=True)
             duration = time.perf_counter() - t0
             con.execute("INSERT INTO chart_runs (run_id, started_at, duration_s, mode, n_new_checks, n_groups, "
                         "n_signals, n_baselines, data_end, parameters, software_version, checks_through, "

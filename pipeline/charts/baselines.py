@@ -27,8 +27,9 @@ def pooled_sigma(frame: pd.DataFrame, starts: np.ndarray, min_pairs: int = 30) -
     """Pooled repeatability per technology, standard kind and level from consecutive checks.
 
     frame: columns technology, standard_kind, level, relative_error, sorted by segment then time;
-    starts: True at each segment's first row. Returns one row per key: technology, standard_kind, level, sigma, n_pairs. Keys with fewer than
-    `min_pairs` moving ranges take the median sigma of their technology (or of the fleet).
+    starts: True at each segment's first row. Returns one row per key: technology, standard_kind,
+    level, sigma, n_pairs. Keys with fewer than `min_pairs` moving ranges take the median sigma of
+    their technology (or of the fleet).
     """
     key = ["technology", "standard_kind", "level"]
     x = frame["relative_error"].to_numpy(dtype=float)
