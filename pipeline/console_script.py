@@ -1,0 +1,17 @@
+"""The `breathfleet` console script: prepare the process's memory, then run the command line.
+
+The memory settings must come before numpy is imported (pipeline/batch_memory.py), and the
+command modules import it, so they are applied here, before pipeline.cli is imported. This
+module is outside that package: importing any module of it would import the commands first.
+"""
+
+from __future__ import annotations
+
+from pipeline.batch_memory import prepare_batch_process
+
+
+def main() -> None:
+    prepare_batch_process()
+    from pipeline.cli import main as command_line
+
+    command_line()
