@@ -97,7 +97,7 @@ def loop_charts(frame: pd.DataFrame, controls: dict, params: dict, replicate_min
     window = np.timedelta64(int(replicate_minutes * 60e6), "us")
     session_gap = np.timedelta64(int(verification_minutes * 60e6), "us")
     cols = {c: [] for c in ("check_id", "position", "z", "moving_range", "cusum_upper", "cusum_lower", "ewma",
-                            "ewma_ucl", "center", "sigma", "unit_sigma", "cusum_upper_run", "cusum_lower_run")}
+                            "ewma_ucl", "center", "sigma", "own_sigma")}
     signals, baselines, states, groups, lines = [], [], [], [], []
     for unit, u in frame.groupby("instrument_id", sort=False, observed=True):
         unit_signals = []  # (check_id, measured_at, level, position, chart, rule, direction, size, onset_at)
@@ -132,8 +132,6 @@ def loop_charts(frame: pd.DataFrame, controls: dict, params: dict, replicate_min
             # Tabular CUSUM, both sides, with the counts of checks since each side was last zero.
             cu = np.empty(n)
             cl = np.empty(n)
-            nu = np.empty(n, dtype=np.int64)
-            nl = np.empty(n, dtype=np.int64)
             c_up = c_lo = headstart
             run_up = run_lo = 0
             for i in range(n):
@@ -145,7 +143,7 @@ def loop_charts(frame: pd.DataFrame, controls: dict, params: dict, replicate_min
                     unit_signals.append((ids[i], t[i], level, i + 1, "cusum", "h", "up", new_up, t[i - run_up + 1]))
                 if new_lo > h and not c_lo > h:
                     unit_signals.append((ids[i], t[i], level, i + 1, "cusum", "h", "down", new_lo, t[i - run_lo + 1]))
-                cu[i], cl[i], nu[i], nl[i] = new_up, new_lo, run_up, run_lo
+                cu[i], cl[i] = new_up, new_lo
                 c_up, c_lo = new_up, new_lo
             # EWMA from 0 with exact limits.
             e = lfilter([lam], [1.0, -(1.0 - lam)], z)
@@ -160,7 +158,7 @@ def loop_charts(frame: pd.DataFrame, controls: dict, params: dict, replicate_min
             for c, v in (("check_id", ids), ("position", r), ("z", z), ("moving_range", mr), ("cusum_upper", cu),
                          ("cusum_lower", cl), ("ewma", e), ("ewma_ucl", half),
                          ("center", np.where(own, center, prev_mean)), ("sigma", np.where(own, sigma, scale)),
-                         ("unit_sigma", own), ("cusum_upper_run", nu), ("cusum_lower_run", nl)):
+                         ("own_sigma", own)):
                 cols[c].append(v)
             unit_z.append(z)
             unit_pos.append(r)
@@ -286,8 +284,7 @@ def _compare(con, loop: dict, run_id: int, through: int, units: list[str]) -> st
     m = loop["points"].merge(pts, on="check_id", suffixes=("", "_e"))
     worst = max(float(np.nanmax(np.abs(m[c] - m[f"{c}_e"]))) for c in
                 ("z", "moving_range", "cusum_upper", "cusum_lower", "ewma", "ewma_ucl", "center", "sigma"))
-    runs_off = int(((m["cusum_upper_run"] != m["cusum_upper_run_e"]) | (m["cusum_lower_run"] != m["cusum_lower_run_e"])
-                    | (m["position"] != m["position_e"]) | (m["unit_sigma"] != (m["sigma_source"] == "unit"))).sum())
+    runs_off = int(((m["position"] != m["position_e"]) | (m["own_sigma"] != m["own_sigma_e"])).sum())
     key = ["check_id", "chart", "rule", "direction"]
     ls = loop["signals"].astype({"chart": str, "rule": str, "direction": str})
     ms = ls.merge(sig.astype({"chart": str, "rule": str, "direction": str}), on=key, how="outer", indicator=True,
@@ -295,6 +292,7 @@ def _compare(con, loop: dict, run_id: int, through: int, units: list[str]) -> st
     both = ms[ms["_merge"] == "both"]
     unmatched = int((ms["_merge"] != "both").sum())
     impact_off = int((both["impact_checks"] != both["impact_checks_e"]).sum())
+    onset_off = int((both["onset_at"].fillna(both["measured_at"]) != both["onset_at_e"].fillna(both["measured_at"])).sum())
     p_off = float(np.nanmax(np.abs(both["p_value"] - both["p_value_e"]))) if len(both) else 0.0
     gm = loop["groups"].merge(grp, on="check_id", suffixes=("", "_e"))
     g_off = float(np.max(np.abs(np.r_[gm["xbar"] - gm["xbar_e"], gm["s"] - gm["s_e"]]))) if len(gm) else 0.0
@@ -304,8 +302,9 @@ def _compare(con, loop: dict, run_id: int, through: int, units: list[str]) -> st
     flags_off = int(((lm["proportional_bias"] != lm["proportional_bias_e"])
                      | (lm["constant_bias"] != lm["constant_bias_e"])).sum())
     return (f"{len(m):,} of {len(loop['points']):,} points matched, max |difference| {worst:.1e}, "
-            f"{runs_off} with other positions/run counters/sigma source; signals {len(both):,} matched, "
-            f"{unmatched} unmatched, {impact_off} other impact windows, max |p-value difference| {p_off:.1e}; "
+            f"{runs_off} with other positions/sigma source; signals {len(both):,} matched, "
+            f"{unmatched} unmatched, {impact_off} other impact windows, {onset_off} other CUSUM onsets, "
+            f"max |p-value difference| {p_off:.1e}; "
             f"baselines {len(loop['baselines'])} vs {n_base}; X-bar/S groups {len(loop['groups'])} vs {len(grp)} "
             f"(max |difference| {g_off:.1e}); linearity sessions {len(loop['linearity'])} vs {len(lin)} "
             f"(max |difference| {l_off:.1e}, {flags_off} other bias flags)")

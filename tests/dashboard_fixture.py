@@ -170,8 +170,7 @@ def _fill_charts(con, checks: pd.DataFrame, units: pd.DataFrame) -> None:
             up.append(cu), lo.append(cl), ew.append(e)
         f = pd.DataFrame({"check_id": g["check_id"], "instrument_id": unit, "level": level, "baseline_period": 0,
                           "measured_at": g["measured_at"], "position": range(1, len(g) + 1),
-                          "relative_error": g["re"], "sigma_source": "unit", "cusum_upper_run": 0,
-                          "cusum_lower_run": 0, "z": z, "moving_range": mr, "cusum_upper": up,
+                          "relative_error": g["re"], "own_sigma": True, "z": z, "moving_range": mr, "cusum_upper": up,
                           "cusum_lower": lo, "ewma": ew, "ewma_ucl": 2.86 * 0.577, "center": center, "sigma": sigma})
         frames.append(f)
         baselines.append({"baseline_id": len(baselines), "instrument_id": unit, "level": level,

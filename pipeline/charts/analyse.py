@@ -100,7 +100,8 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
       of the same groups. state: chart_state rows; own: stored own baselines (KEY, center, sigma);
       pooled: technology, standard_kind, level, sigma. Returns points (the lower EWMA limit is the upper one
       negated: readers compute it), limits (the constant individuals and moving-range limits of
-      every point, recorded with the run), signals, baselines, state frames and check_type.
+      every point, recorded with the run), signals, baselines, state frames, check_type and
+      onsets_stored (CUSUM signals whose onset is a stored point: check_id, direction, KEY, position).
     Every statistic works on the arrays of all groups back to back (grouping.Segments computed once);
     in a full run (no tail) the new rows are the frame, so nothing is copied to select them.
     starts: _starts(new), when the caller has it (used when there is no tail).
@@ -205,7 +206,6 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     np.round(z, 9, out=z)
     if has_old and "z" in frame:
         z = np.where(old, frame["z"].to_numpy(dtype=float, na_value=np.nan), z)
-    source = pd.Categorical.from_codes(use_own.view(np.int8), categories=["fleet_pooled", "unit"])
     mr = moving_range(z, seg=seg)
     # Run rules on the standardised individuals (tail included for context).
     events = apply_run_rules(z, starts, params["run_rules"]["set"], tuple(params["run_rules"]["rules"]),
@@ -240,9 +240,8 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
         "measured_at": of_new(frame["measured_at"].to_numpy()), "position": of_new(position),
         "relative_error": of_new(x), "z": zn, "moving_range": mr_new,
         "cusum_upper": cus.upper, "cusum_lower": cus.lower, "ewma": ew.ewma, "ewma_ucl": ew.ucl,
-        "center": of_new(center_out), "sigma": of_new(sigma_out),
-        "sigma_source": source[new_idx] if has_old else source,
-        "cusum_upper_run": run_u, "cusum_lower_run": run_l}, copy=False)  # no block copy of 9 M rows
+        "center": of_new(center_out), "sigma": of_new(sigma_out), "own_sigma": of_new(use_own)},
+        copy=False)  # no block copy of 9 M rows
     # Signals on crossings: beyond the limit now, not beyond it at the group's previous check
     # (for a group's first new row: its carried state against the previous limit).
     def crossed(above, above_before):
@@ -257,14 +256,23 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     base = {c: points[c].array if c == "instrument_id" else points[c].to_numpy()
             for c in ("instrument_id", "level", "check_id", "measured_at", "position")}
     measured_new = base["measured_at"]
+    # Page's onset: the check after the side was last zero. Where that check was charted by an
+    # earlier run, the signal names its stored point (onsets_stored) and analyse reads its time.
+    onsets_stored = []
     for stat, c0, side in ((cus.upper, cu0, "up"), (cus.lower, cl0, "down")):
         hit = crossed(stat > h, c0 > h)
         run = (run_u if side == "up" else run_l)[hit]
         onset_row = hit - (run - 1)
         onset_ok = onset_row >= first_new[gn[hit]] if len(hit) else np.empty(0, bool)
         onset_at = np.where(onset_ok, measured_new[np.maximum(onset_row, 0)], np.datetime64("NaT"))
-        sig_frames.append(signal_frame(base, hit, "cusum", "h", side, stat[hit], onset_at,
-                                       np.where(onset_ok, 0, run - 1)))
+        sig_frames.append(signal_frame(base, hit, "cusum", "h", side, stat[hit], onset_at))
+        far = hit[~onset_ok]
+        if len(far):
+            onsets_stored.append(pd.DataFrame({
+                "check_id": base["check_id"][far], "direction": side,
+                "instrument_id": np.asarray(base["instrument_id"][far], dtype=object),
+                "level": base["level"][far], "baseline_period": points["baseline_period"].to_numpy()[far],
+                "position": base["position"][far] - (run[~onset_ok] - 1)}))
     neg_ucl = ew.lcl
     for side, above, above_before in (("up", ew.ewma > ew.ucl, e0 > prev_half),
                                       ("down", ew.ewma < neg_ucl, -e0 > prev_half)):  # -e > ucl, exactly
@@ -316,6 +324,7 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     # once with the run (chart_runs) rather than as three columns of millions of equal values.
     return {"points": points, "limits": {"ind_lcl": -3.0, "ind_ucl": 3.0, "mr_ucl": mr_limit},
             "signals": signals, "baselines": baselines, "state": new_state,
+            "onsets_stored": pd.concat(onsets_stored, ignore_index=True) if onsets_stored else None,
             "check_type": frame["check_type"].array[new_idx] if has_old else frame["check_type"].array}
 
 
@@ -334,7 +343,7 @@ def _names(value, n: int, categories: list[str]) -> pd.Categorical:
 
 
 def signal_frame(base: dict, rows: np.ndarray, chart: str, rule, direction, size: np.ndarray,
-                 onset_at: np.ndarray | None = None, onset_back: np.ndarray | int = 0) -> pd.DataFrame:
+                 onset_at: np.ndarray | None = None) -> pd.DataFrame:
     """Signal rows at `rows` of the per-check arrays in `base` (instrument_id, level, check_id,
     measured_at, position); chart, rule and direction as categoricals with fixed categories."""
     n = len(rows)
@@ -346,7 +355,6 @@ def signal_frame(base: dict, rows: np.ndarray, chart: str, rule, direction, size
     when = out["measured_at"].dtype
     out["onset_at"] = (np.full(n, np.datetime64("NaT"), dtype=when) if onset_at is None
                        else np.asarray(onset_at, dtype=when))
-    out["onset_back"] = np.broadcast_to(np.asarray(onset_back, dtype=np.int64), (n,)).copy()
     return pd.DataFrame(out)
 
 
@@ -441,6 +449,21 @@ def _append(con: duckdb.DuckDBPyConnection, table: str, rows, *, or_ignore: bool
         con.unregister(name)
 
 
+def _read_stored_onsets(reader: duckdb.DuckDBPyConnection, sig: pd.DataFrame, onsets: pd.DataFrame) -> None:
+    """Fill in sig.onset_at of the CUSUM signals whose onset is a point stored by an earlier run:
+    the time of the point at the onset position of the signal's group (onsets: compute_charts'
+    onsets_stored)."""
+    reader.register("_bf_onsets", onsets)
+    try:
+        found = reader.execute("SELECT o.check_id, o.direction, p.measured_at FROM _bf_onsets o JOIN chart_points p "
+                               "USING (instrument_id, level, baseline_period, position)").df()
+    finally:
+        reader.unregister("_bf_onsets")
+    cusum = sig.loc[(sig["chart"] == "cusum").to_numpy(), ["check_id", "direction"]]
+    at = cusum.astype({"direction": str}).reset_index().merge(found, on=["check_id", "direction"])
+    sig.loc[at["index"].to_numpy(), "onset_at"] = at["measured_at"].to_numpy()
+
+
 def _signals_groups_baselines(out: dict, ver: pd.DataFrame, params: dict, settings: Settings,
                               reader: duckdb.DuckDBPyConnection, run_id: int, first_b: int):
     """The rest of a run once the points are computed: X-bar/S groups and their signals, linearity,
@@ -489,6 +512,8 @@ def _signals_groups_baselines(out: dict, ver: pd.DataFrame, params: dict, settin
                                          lam=params["ewma"]["lam"], L=params["ewma"]["L"])
         fs = fleet_significance(sig["p_value"].to_numpy(), cs.fleet_fdr_q)
         sig["fleet_significant"] = pd.array(np.where(np.isnan(fs), None, fs > 0), dtype="boolean")
+        if out["onsets_stored"] is not None:
+            _read_stored_onsets(reader, sig, out["onsets_stored"])
         sig["impact_checks"] = impact_checks(reader, sig)
     bl = out["baselines"]
     # A baseline's parameters are its run's (chart_runs.parameters), stored once with the run.
@@ -595,7 +620,7 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
             if len(bl):
                 _append(con, "chart_baselines", bl)
             if len(sig):
-                sig = sig.drop(columns=["position", "onset_back"]).assign(
+                sig = sig.drop(columns=["position"]).assign(
                     signal_id=np.arange(first_sig, first_sig + len(sig)), run_id=run_id, created_at=started)
                 _append(con, "chart_signals", pa.Table.from_pandas(sig, preserve_index=False))
             if len(groups):
