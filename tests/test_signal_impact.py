@@ -36,3 +36,6 @@ def test_impact_checks_equal_a_direct_count():
             for u, a, b in zip(sig["instrument_id"], start, sig["measured_at"])]
     assert got.tolist() == want
     assert max(want) > 1
+    # units as a categorical with categories no signal uses (as analyse passes them): the same counts
+    units = pd.Categorical(sig["instrument_id"], categories=["0", "A", "B", "Bz", "C", "D"])
+    assert impact_checks(con, sig.assign(instrument_id=units)).tolist() == want

@@ -511,7 +511,7 @@ def _signals_groups_baselines(out: dict, ver: pd.DataFrame, params: dict, settin
         sig["p_value"] = signal_p_values(sig, k=params["cusum"]["k"], h=params["cusum"]["h"],
                                          lam=params["ewma"]["lam"], L=params["ewma"]["L"])
         fs = fleet_significance(sig["p_value"].to_numpy(), cs.fleet_fdr_q)
-        sig["fleet_significant"] = pd.array(np.where(np.isnan(fs), None, fs > 0), dtype="boolean")
+        sig["fleet_significant"] = pd.arrays.BooleanArray(fs > 0, np.isnan(fs))  # NULL: no p-value
         if out["onsets_stored"] is not None:
             _read_stored_onsets(reader, sig, out["onsets_stored"])
         sig["impact_checks"] = impact_checks(reader, sig)

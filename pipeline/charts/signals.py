@@ -53,17 +53,19 @@ def impact_checks(con, sig: pd.DataFrame) -> np.ndarray:
     if sig.empty:
         return np.empty(0, dtype=np.int64)
     unit = sig["instrument_id"]
-    if isinstance(unit.dtype, pd.CategoricalDtype):  # codes of the units present, no strings made
-        unit = unit.cat.remove_unused_categories()
-        codes, names = unit.cat.codes.to_numpy(), unit.cat.categories.astype(str)
+    if isinstance(unit.dtype, pd.CategoricalDtype):  # the units present, by their codes: no strings made
+        codes = unit.cat.codes.to_numpy()
+        present = np.flatnonzero(np.bincount(codes, minlength=len(unit.cat.categories)))
+        names = unit.cat.categories[present].astype(str)
     else:
         codes, names = pd.factorize(unit.astype(str))
+        present = np.arange(len(names))
     onset = sig["onset_at"].fillna(sig["measured_at"]).to_numpy(dtype="datetime64[us]")
     at = sig["measured_at"].to_numpy(dtype="datetime64[us]")
     lo = onset.min()
     shift = np.int64(1) << 46  # microseconds after `lo`: 2^46 us is about 2,200 years
     con.register("_bf_signal_units", pd.DataFrame({"instrument_id": np.asarray(names, dtype=object),
-                                                    "code": np.arange(len(names), dtype=np.int64)}))
+                                                    "code": present.astype(np.int64)}))
     try:  # the same keys, made and sorted by DuckDB
         keys = con.execute("SELECT u.code * $shift + (epoch_us(c.measured_at) - $lo_us) AS key FROM checks c "
                            "JOIN _bf_signal_units u USING (instrument_id) "
