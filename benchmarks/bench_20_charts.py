@@ -25,10 +25,10 @@ What is timed and compared. Each engine run (full, then incremental) is timed in
 own that opens the database as `breathfleet run` does, so it starts as it does after an ingest, not
 from the memory this process is left in by preparing the fleet (that made the same full run about
 a third slower). The loop runs on a random sample of units, on the same checks as the
-engine's full run, in this process after it, and is scaled up by checks. This process gets the
-same malloc settings as the engine's (pipeline/batch_memory.py); numpy's huge-page switch does not
-apply here, as numpy is imported already, but the loop's arrays, one segment each, stay far below
-the 4 MB where numpy asks for huge pages. It does not read or
+engine's full run, in this process after it, and is scaled up by checks. It runs under the same
+malloc settings as analyse_fleet (batch_memory.freed_memory_kept); numpy's huge-page switch does
+not apply in this process, as numpy is imported already, but the loop's arrays, one segment each,
+stay far below the 4 MB where numpy asks for huge pages. It does not read or
 store: it is given the sample's rows, the frozen pooled sigma and the units' control-check times
 (read before its clock starts). Its estimate for the fleet is therefore: the engine's own read
 and store times (the same SQL would serve the loop) + the loop's work scaled up. The engine's
@@ -326,8 +326,8 @@ def _timed_analyse(path: str) -> None:
 
 def _analyse_in_new_process(path: Path) -> tuple[SimpleNamespace, float]:
     """analyse_fleet timed in a process of its own, as `breathfleet run` (or `analyse`) runs it after
-    an ingest: the process's memory prepared as the console script prepares it (before numpy is
-    imported: pipeline/batch_memory.py), the database freshly opened, not the memory state this
+    an ingest: numpy imported after the console script's preparation (pipeline/batch_memory.py),
+    the database freshly opened, not the memory state this
     process is left in by preparing the fleet. Returns the run (its fields) and its seconds."""
     done = subprocess.run([sys.executable, "-c", "from pipeline.batch_memory import prepare_batch_process; "
                            "prepare_batch_process(); from benchmarks.bench_20_charts import _timed_analyse; "
@@ -337,14 +337,13 @@ def _analyse_in_new_process(path: Path) -> tuple[SimpleNamespace, float]:
 
 
 def main() -> None:
-    from pipeline.batch_memory import prepare_batch_process
+    from pipeline.batch_memory import freed_memory_kept
     from pipeline.charts.analyse import chart_parameters
     from pipeline.db import open_database
     from pipeline.settings import Settings
 
     from benchmarks.fleet import benchmark_database
 
-    prepare_batch_process()  # the loop's process: the engine's malloc settings (see the docstring)
     # The engine's compiled kernels are cached on disk by numba: compiled by the first run on a
     # machine, loaded from the cache by every later one. Done here in a separate process, so that
     # the timed runs below load them from the cache as any later `breathfleet analyse` does.
@@ -390,10 +389,11 @@ def main() -> None:
             through = con.execute("SELECT checks_through FROM chart_runs WHERE run_id = $r",
                                   {"r": full.run_id}).fetchone()[0]
             frame, controls, units = _sample(con, full.run_id, through)
-        t0 = time.perf_counter()
-        loop = loop_charts(frame, controls, params, cs.replicate_window_minutes, cs.verification_window_minutes,
-                           cs.fleet_fdr_q)
-        t_sample = time.perf_counter() - t0
+        with freed_memory_kept():  # as analyse_fleet runs
+            t0 = time.perf_counter()
+            loop = loop_charts(frame, controls, params, cs.replicate_window_minutes, cs.verification_window_minutes,
+                               cs.fleet_fdr_q)
+            t_sample = time.perf_counter() - t0
         if not i:
             agreement = _compare(con, loop, full.run_id, through, units)
         con.close()

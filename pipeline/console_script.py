@@ -1,8 +1,8 @@
-"""The `breathfleet` console script: prepare the process's memory, then run the command line.
+"""The `breathfleet` console script: switch off numpy's huge-page advice, then run the command line.
 
-The memory settings must come before numpy is imported (pipeline/batch_memory.py), and the
-command modules import it, so they are applied here, before pipeline.cli is imported. This
-module is outside that package: importing any module of it would import the commands first.
+The switch is read when numpy is imported (pipeline/batch_memory.py), and the command modules
+import numpy, so it is set here, before pipeline.cli is imported. This module is outside that
+package: importing any module of it would import the commands first.
 """
 
 from __future__ import annotations

@@ -21,6 +21,7 @@ import pandas as pd
 import pyarrow as pa
 
 from pipeline import __version__ as SOFTWARE_VERSION
+from pipeline.batch_memory import freed_memory_kept
 from pipeline.charts import changepoint, short_run
 from pipeline.charts.baselines import POOLED_METHOD, own_estimates, pooled_sigma
 from pipeline.charts.cusum import tabular_cusum
@@ -534,9 +535,10 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
     Incremental: state carried per chart group (chart_state) and frozen baselines are reused; only
     checks missing from chart_points are charted. A group that receives a check older than its last
     charted check is charted again from its segment start (its frozen baselines are kept).
-    Returns an AnalysisRun with counts, duration and the parameters used.
+    Returns an AnalysisRun with counts, duration and the parameters used. For its duration DuckDB
+    may use db.ANALYSE_MEMORY_LIMIT and glibc keeps freed memory for reuse (pipeline/batch_memory.py).
     """
-    with memory_limit(con, ANALYSE_MEMORY_LIMIT):
+    with memory_limit(con, ANALYSE_MEMORY_LIMIT), freed_memory_kept():
         return _analyse(con, settings)
 
 
