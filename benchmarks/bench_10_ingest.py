@@ -23,6 +23,8 @@ from benchmarks.fleet import ROOT, database_path, fleet_dir
 
 _INGEST = """
 import json, os, sys
+from pipeline.batch_memory import prepare_batch_process
+prepare_batch_process()  # before numpy loads, as the breathfleet console script does
 os.environ.setdefault("BREATHFLEET_OPERATOR_KEY", "benchmark-key")
 from pipeline.demo_job import run_demo_job
 from pipeline.settings import Settings
