@@ -17,7 +17,8 @@ def header(title: str, question: str) -> dict | None:
     """Title, the question the page answers, data range, version and cautions.
 
     Returns the data range (None when no checks are stored yet). Stops the page with a plain
-    message when no database is configured or a writer holds it before its first snapshot.
+    message when no database is configured, a writer holds it before its first snapshot, or an
+    older breathfleet published the snapshot.
     """
     st.title(title)
     st.caption(question)
@@ -28,6 +29,13 @@ def header(title: str, question: str) -> dict | None:
         st.stop()
     if loaders.data_token() is None:
         st.info(f"The database file {loaders.database_path()} does not exist yet. Ingest data into it first.")
+        footer(None)
+        st.stop()
+    behind = loaders.schema_behind()
+    if behind is not None:
+        st.warning(f"The published data was written by an older breathfleet (database schema {behind[0]}; "
+                   f"this version reads schema {behind[1]}). Run `breathfleet run --db {loaders.database_path()}` "
+                   "once: it brings the database up to date and publishes it again.")
         footer(None)
         st.stop()
     try:

@@ -31,7 +31,7 @@ import pandas as pd
 import streamlit as st
 
 from pipeline import __version__
-from pipeline.db import connect_reader, snapshot_path, sql_text
+from pipeline.db import connect_reader, latest_schema_version, snapshot_path, sql_text
 from pipeline.settings import Settings, load_settings
 
 DB_ENV = "BREATHFLEET_DB"
@@ -215,6 +215,16 @@ def tolerance_pct() -> float:
     rules = settings().standards.tolerance_rules
     default = next((r for r in rules if not r.check_type and not r.level), rules[-1])
     return default.relative * 100
+
+
+def schema_behind() -> tuple[int, int] | None:
+    """(the snapshot's schema version, this version's) when an older breathfleet published the
+    snapshot: its tables may lack columns the queries read. None when current or unknown."""
+    df = load("dashboard_schema_version")
+    if df is None or df.empty or pd.isna(df.loc[0, "version"]):
+        return None
+    have, want = int(df.loc[0, "version"]), latest_schema_version()
+    return (have, want) if have < want else None
 
 
 def data_range() -> dict[str, Any] | None:

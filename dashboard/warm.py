@@ -6,7 +6,7 @@ queries; a thread (`keep_warm`) runs it again when a writer publishes a new snap
 cache is keyed on the snapshot, so the old entries are no longer read) and before the query
 cache's time to live runs out. What is warmed is
 what every visitor's first view of a page reads with the page's default controls: the header's
-data range, the fleet summaries, the signals of the last 7 days, the fleet trend, the service
+snapshot schema version and data range, the fleet summaries, the signals of the last 7 days, the fleet trend, the service
 queue, the unit list and the first unit's view (the unit page opened without a unit shows the
 first of the list), the funnel at the first level and default window, the lots page (its first
 lot's units), the data-quality page (its first quarantine reason's sample). Other units'
@@ -92,7 +92,11 @@ def _steps() -> list[tuple[str, Callable[[], object]]]:
         loaders.load("dashboard_silent_units", days=loaders.settings().queue.silence_days)
         loaders.load("dashboard_verdict_disagreements")
 
-    return [("header", loaders.data_range), ("summary", loaders.summary_state), ("fleet", fleet),
+    def header():
+        loaders.schema_behind()
+        return loaders.data_range()
+
+    return [("header", header), ("summary", loaders.summary_state), ("fleet", fleet),
             ("queue", lambda: loaders.load("dashboard_queue")), ("unit", unit),
             ("comparison", comparison), ("lots", lots), ("data quality", data_quality)]
 

@@ -84,6 +84,11 @@ def memory_limit(con: duckdb.DuckDBPyConnection, limit: str) -> Iterator[None]:
         con.execute(f"SET memory_limit = '{before}'")
 
 
+def latest_schema_version() -> int:
+    """The newest numbered schema file in sql/schema: the tables this version's queries expect."""
+    return max(int(m.group(1)) for p in (SQL_DIR / "schema").glob("*.sql") if (m := _MIGRATION_NAME.match(p.name)))
+
+
 def migrate(con: duckdb.DuckDBPyConnection) -> list[str]:
     """Apply numbered schema files not yet recorded, then (re)create every view.
 

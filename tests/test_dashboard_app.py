@@ -11,6 +11,7 @@ import time
 from html.parser import HTMLParser
 from pathlib import Path
 
+import duckdb
 import pandas as pd
 import pyarrow as pa
 import pytest
@@ -123,6 +124,20 @@ def test_every_page_renders_on_an_empty_database(monkeypatch, empty_db, page):
     assert not at.exception, [e.value for e in at.exception]
     assert "Data range: no checks stored yet" in " ".join(c.value for c in at.caption)
     assert any("not computed yet" in i.value for i in at.info)
+
+
+def test_a_snapshot_from_an_older_version_asks_for_a_run(monkeypatch, tmp_path):
+    from pipeline.db import latest_schema_version, snapshot_path
+
+    db = build_fleet_db(tmp_path / "old.duckdb")
+    con = duckdb.connect(str(snapshot_path(db)))  # as if published before the newest migration ran
+    con.execute("DELETE FROM schema_migrations WHERE version = $v", {"v": latest_schema_version()})
+    con.close()
+    at = run_page(monkeypatch, db, "unit")
+    assert not at.exception and not at.error
+    assert f"this version reads schema {latest_schema_version()}" in at.warning[0].value
+    assert "breathfleet run --db" in at.warning[0].value
+    # a current snapshot shows no such warning (test_every_page_renders_on_a_populated_database)
 
 
 def test_a_missing_database_file_is_named(monkeypatch, tmp_path):
