@@ -15,9 +15,9 @@ Two settings, each where it belongs:
 - freed_memory_kept() is a context for one fleet-wide computation (analyse_fleet): where the C
   library is glibc, malloc serves large blocks from the heap and keeps freed memory for reuse
   (mallopt M_MMAP_MAX = 0, M_TRIM_THRESHOLD = 2**31 - 1); on exit glibc's defaults come back
-  (not values given in MALLOC_* environment variables) and malloc_trim returns the kept memory. Only there: kept memory counts toward the process's peak,
-  and ingest has a peak-memory target (its peak rose from 1.73 to 1.94 GB with the setting on for
-  the whole process).
+  (not values given in MALLOC_* environment variables) and malloc_trim returns the kept memory.
+  Only there: kept memory counts toward the process's peak, and ingest has a peak-memory target
+  (its peak rose from 1.73 to 1.94 GB with the setting on for the whole process).
 """
 
 from __future__ import annotations

@@ -15,6 +15,7 @@ import os
 import re
 import shutil
 from collections.abc import Iterator
+import functools
 from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
@@ -84,6 +85,17 @@ def memory_limit(con: duckdb.DuckDBPyConnection, limit: str) -> Iterator[None]:
         con.execute(f"SET memory_limit = '{before}'")
 
 
+@contextmanager
+def registered(con: duckdb.DuckDBPyConnection, name: str, rows) -> Iterator[None]:
+    """A frame (or Arrow table) visible to `con`'s queries as view `name` inside the block."""
+    con.register(name, rows)
+    try:
+        yield
+    finally:
+        con.unregister(name)
+
+
+@functools.cache
 def latest_schema_version() -> int:
     """The newest numbered schema file in sql/schema: the tables this version's queries expect."""
     return max(int(m.group(1)) for p in (SQL_DIR / "schema").glob("*.sql") if (m := _MIGRATION_NAME.match(p.name)))

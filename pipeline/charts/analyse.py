@@ -33,7 +33,7 @@ from pipeline.charts.xbar_s import xbar_s_groups
 from pipeline.charts.individuals import moving_range, mr_ucl_standardised
 from pipeline.charts.run_rules import RULES, apply_run_rules, select_rules
 from pipeline.charts.signals import fleet_significance, impact_checks, signal_p_values
-from pipeline.db import ANALYSE_MEMORY_LIMIT, memory_limit, sql_text, transaction
+from pipeline.db import ANALYSE_MEMORY_LIMIT, memory_limit, registered, sql_text, transaction
 from pipeline.settings import Settings
 
 KEY = ["instrument_id", "level", "baseline_period"]
@@ -397,11 +397,8 @@ def read_verification_checks(con: duckdb.DuckDBPyConnection, new: pd.DataFrame) 
     values (sql/queries/charts_verification_values.sql): instrument_id, measured_at, level,
     expected, measured, for the linearity fit."""
     ver = new.loc[(new["check_type"] == "verification").to_numpy(), ["check_id", "instrument_id", "measured_at", "level"]]
-    con.register("_bf_verification", ver[["check_id"]])
-    try:
+    with registered(con, "_bf_verification", ver[["check_id"]]):
         values = con.execute(sql_text("queries/charts_verification_values")).fetchnumpy()
-    finally:
-        con.unregister("_bf_verification")
     at = np.searchsorted(values["check_id"], ver["check_id"].to_numpy())
     return ver.assign(expected=values["expected"][at], measured=values["measured"][at])
 
@@ -419,8 +416,7 @@ def _sort_codes(col: pd.Series) -> np.ndarray:
 
 
 def _load_state(con, keys: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
-    con.register("_bf_keys", keys)
-    try:
+    with registered(con, "_bf_keys", keys):
         state = con.execute("SELECT s.* FROM chart_state s JOIN _bf_keys USING (instrument_id, level, baseline_period)").df()
         own = con.execute("SELECT b.instrument_id, b.level, b.baseline_period, b.center, b.sigma FROM chart_baselines b "
                           "JOIN _bf_keys USING (instrument_id, level, baseline_period) WHERE b.sigma_source = 'unit' "
@@ -435,31 +431,23 @@ def _load_state(con, keys: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame, pd
             f"WHERE k.n IS NULL OR p.position > k.n - {TAIL} "
             f"QUALIFY row_number() OVER (PARTITION BY p.instrument_id, p.level, p.baseline_period ORDER BY p.position DESC) <= {TAIL}"
         ).df()
-    finally:
-        con.unregister("_bf_keys")
     return state, own, tail
 
 
 def _append(con: duckdb.DuckDBPyConnection, table: str, rows, *, or_ignore: bool = False) -> None:
     """Insert a frame (or Arrow table) into `table` by column name."""
     name = f"_bf_new_{table}"
-    con.register(name, rows)
-    try:
+    with registered(con, name, rows):
         con.execute(f"INSERT {'OR IGNORE ' if or_ignore else ''}INTO {table} BY NAME SELECT * FROM {name}")
-    finally:
-        con.unregister(name)
 
 
 def _read_stored_onsets(reader: duckdb.DuckDBPyConnection, sig: pd.DataFrame, onsets: pd.DataFrame) -> None:
     """Fill in sig.onset_at of the CUSUM signals whose onset is a point stored by an earlier run:
     the time of the point at the onset position of the signal's group (onsets: compute_charts'
     onsets_stored)."""
-    reader.register("_bf_onsets", onsets)
-    try:
+    with registered(reader, "_bf_onsets", onsets):
         found = reader.execute("SELECT o.check_id, o.direction, p.measured_at FROM _bf_onsets o JOIN chart_points p "
                                "USING (instrument_id, level, baseline_period, position)").df()
-    finally:
-        reader.unregister("_bf_onsets")
     cusum = sig.loc[(sig["chart"] == "cusum").to_numpy(), ["check_id", "direction"]]
     at = cusum.astype({"direction": str}).reset_index().merge(found, on=["check_id", "direction"])
     sig.loc[at["index"].to_numpy(), "onset_at"] = at["measured_at"].to_numpy()
@@ -521,10 +509,9 @@ def _signals_groups_baselines(out: dict, ver: pd.DataFrame, params: dict, settin
     bl = bl.assign(baseline_id=np.arange(first_b, first_b + len(bl)), run_id=run_id, software_version=SOFTWARE_VERSION)
     rb = (bl["version"] == 1) & (bl["baseline_period"] % 1000 != 0)
     if rb.any():
-        reader.register("_bf_rb", bl.loc[rb, ["instrument_id", "frozen_at"]].reset_index())
-        why = reader.execute("SELECT b.index, r.reason FROM _bf_rb b ASOF JOIN chart_rebaselines r "
-                             "ON b.instrument_id = r.instrument_id AND b.frozen_at >= r.rebaseline_at").df()
-        reader.unregister("_bf_rb")
+        with registered(reader, "_bf_rb", bl.loc[rb, ["instrument_id", "frozen_at"]].reset_index()):
+            why = reader.execute("SELECT b.index, r.reason FROM _bf_rb b ASOF JOIN chart_rebaselines r "
+                                 "ON b.instrument_id = r.instrument_id AND b.frozen_at >= r.rebaseline_at").df()
         bl.loc[why["index"].to_numpy(), "reason"] = ("rebaseline: " + why["reason"]).to_numpy()
     return groups, lin, sig, bl
 
@@ -570,17 +557,13 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
         late = new.merge(state[KEY + ["last_measured_at"]], on=KEY)
         late = late.loc[late["measured_at"] < late["last_measured_at"], KEY].drop_duplicates()
         if len(late):
-            con.register("_bf_late", late)
-            try:
-                with transaction(con):
-                    for table in ("chart_signals", "chart_groups"):  # of the points removed below
-                        con.execute(f"DELETE FROM {table} WHERE check_id IN (SELECT p.check_id FROM chart_points p "
-                                    "JOIN _bf_late USING (instrument_id, level, baseline_period))")
-                    for table in ("chart_points", "chart_state"):
-                        con.execute(f"DELETE FROM {table} t USING _bf_late l WHERE t.instrument_id = l.instrument_id "
-                                    "AND t.level = l.level AND t.baseline_period = l.baseline_period")
-            finally:
-                con.unregister("_bf_late")
+            with registered(con, "_bf_late", late), transaction(con):
+                for table in ("chart_signals", "chart_groups"):  # of the points removed below
+                    con.execute(f"DELETE FROM {table} WHERE check_id IN (SELECT p.check_id FROM chart_points p "
+                                "JOIN _bf_late USING (instrument_id, level, baseline_period))")
+                for table in ("chart_points", "chart_state"):
+                    con.execute(f"DELETE FROM {table} t USING _bf_late l WHERE t.instrument_id = l.instrument_id "
+                                "AND t.level = l.level AND t.baseline_period = l.baseline_period")
             recharge |= set(late["instrument_id"].astype(str))
             new = read_chart_input(con, with_rb, through, recharge)
             starts = _starts(new)
@@ -614,10 +597,9 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
                 groups, lin, sig, bl = _signals_groups_baselines(out, ver, params, settings, reader, run_id, first_b)
                 t_compute = time.perf_counter() - t0 - t_read
             storing.result()
-            con.register("_bf_state_keys", st)
-            con.execute("DELETE FROM chart_state t USING _bf_state_keys s WHERE t.instrument_id = s.instrument_id "
-                        "AND t.level = s.level AND t.baseline_period = s.baseline_period")
-            con.unregister("_bf_state_keys")
+            with registered(con, "_bf_state_keys", st):
+                con.execute("DELETE FROM chart_state t USING _bf_state_keys s WHERE t.instrument_id = s.instrument_id "
+                            "AND t.level = s.level AND t.baseline_period = s.baseline_period")
             _append(con, "chart_state", st)
             if len(bl):
                 _append(con, "chart_baselines", bl)

@@ -7,6 +7,7 @@ import pandas as pd
 from scipy.stats import norm
 
 from pipeline.charts.fleet_alarms import benjamini_hochberg_arrays, cusum_signal_p_values, ewma_signal_p_values
+from pipeline.db import registered
 
 SIGNAL_COLUMNS = ["instrument_id", "level", "check_id", "measured_at", "chart", "rule", "direction",
                   "size", "onset_at", "p_value"]
@@ -64,16 +65,13 @@ def impact_checks(con, sig: pd.DataFrame) -> np.ndarray:
     at = sig["measured_at"].to_numpy(dtype="datetime64[us]")
     lo = onset.min()
     shift = np.int64(1) << 46  # microseconds after `lo`: 2^46 us is about 2,200 years
-    con.register("_bf_signal_units", pd.DataFrame({"instrument_id": np.asarray(names, dtype=object),
-                                                    "code": present.astype(np.int64)}))
-    try:  # the same keys, made and sorted by DuckDB
+    units = pd.DataFrame({"instrument_id": np.asarray(names, dtype=object), "code": present.astype(np.int64)})
+    with registered(con, "_bf_signal_units", units):  # the same keys, made and sorted by DuckDB
         keys = con.execute("SELECT u.code * $shift + (epoch_us(c.measured_at) - $lo_us) AS key FROM checks c "
                            "JOIN _bf_signal_units u USING (instrument_id) "
                            "WHERE c.check_type = 'control' AND c.measured_at >= $lo ORDER BY key",
                            {"lo": pd.Timestamp(lo).to_pydatetime(), "shift": int(shift),
                             "lo_us": int(lo.astype(np.int64))}).fetchnumpy()["key"]
-    finally:
-        con.unregister("_bf_signal_units")
     keys = np.asarray(keys, dtype=np.int64)
 
     def key(code, t):
