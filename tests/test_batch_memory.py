@@ -67,3 +67,21 @@ def test_the_console_script_prepares_the_process_before_the_commands_load():
     assert "pipeline.console_script" in script.read_text(encoding="utf-8")
     # the console script's module must not import numpy before preparing (it sits outside pipeline.cli)
     assert _run("import sys, pipeline.console_script; print('numpy' in sys.modules)") == ["False"]
+
+
+def test_collector_paused_within_the_block_and_restored_after():
+    import gc
+
+    from pipeline.batch_memory import collector_paused
+
+    assert gc.isenabled()
+    with collector_paused():
+        assert not gc.isenabled()
+    assert gc.isenabled()
+    gc.disable()
+    try:  # a collector that was off stays off
+        with collector_paused():
+            assert not gc.isenabled()
+        assert not gc.isenabled()
+    finally:
+        gc.enable()

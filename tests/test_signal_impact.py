@@ -6,7 +6,7 @@ import duckdb
 import numpy as np
 import pandas as pd
 
-from pipeline.charts.signals import impact_checks
+from pipeline.charts.signals import control_check_times, impact_checks
 from pipeline.db import migrate
 
 
@@ -39,3 +39,13 @@ def test_impact_checks_equal_a_direct_count():
     # units as a categorical with categories no signal uses (as analyse passes them): the same counts
     units = pd.Categorical(sig["instrument_id"], categories=["0", "A", "B", "Bz", "C", "D"])
     assert impact_checks(con, sig.assign(instrument_id=units)).tolist() == want
+    # control-check times read ahead (as analyse reads them while it computes the charts): the same
+    # counts, whether they cover every signal, start too late for some onsets, or lack a unit
+    start_min = start.min()
+    for names, lo in ((["A", "B", "C", "D"], start_min), (["A", "B", "C"], start_min + pd.Timedelta(days=3)),
+                      (["A", "C"], start_min)):
+        times = control_check_times(con, names, lo)
+        assert impact_checks(con, sig.assign(instrument_id=units), times).tolist() == want
+    # times that cover every signal are used as they are: no connection needed
+    times = control_check_times(con, ["D", "C", "B", "A"], start_min)
+    assert impact_checks(None, sig.assign(instrument_id=units), times).tolist() == want

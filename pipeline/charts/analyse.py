@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import json
 import time
-from concurrent.futures import ThreadPoolExecutor
+from concurrent.futures import ThreadPoolExecutor, wait
 from dataclasses import asdict, dataclass
 from datetime import UTC, datetime
 
@@ -21,7 +21,7 @@ import pandas as pd
 import pyarrow as pa
 
 from pipeline import __version__ as SOFTWARE_VERSION
-from pipeline.batch_memory import freed_memory_kept
+from pipeline.batch_memory import collector_paused, freed_memory_kept
 from pipeline.charts import changepoint, short_run
 from pipeline.charts.baselines import POOLED_METHOD, own_estimates, pooled_sigma
 from pipeline.charts.cusum import tabular_cusum
@@ -32,7 +32,8 @@ from pipeline.charts.linearity import fit_linearity
 from pipeline.charts.xbar_s import xbar_s_groups
 from pipeline.charts.individuals import moving_range, mr_ucl_standardised
 from pipeline.charts.run_rules import RULES, apply_run_rules, select_rules
-from pipeline.charts.signals import fleet_significance, impact_checks, signal_p_values
+from pipeline.charts.signals import (ControlCheckTimes, control_check_times, fleet_significance, impact_checks,
+                                     signal_p_values)
 from pipeline.db import ANALYSE_MEMORY_LIMIT, memory_limit, registered, sql_text, transaction
 from pipeline.settings import Settings
 
@@ -453,12 +454,25 @@ def _read_stored_onsets(reader: duckdb.DuckDBPyConnection, sig: pd.DataFrame, on
     sig.loc[at["index"].to_numpy(), "onset_at"] = at["measured_at"].to_numpy()
 
 
-def _signals_groups_baselines(out: dict, ver: pd.DataFrame, params: dict, settings: Settings,
-                              reader: duckdb.DuckDBPyConnection, run_id: int, first_b: int):
-    """The rest of a run once the points are computed: X-bar/S groups and their signals, linearity,
-    every signal's run length, p-value, fleet significance and impact window, and the baselines'
-    ids and re-baseline reasons. reader: a cursor for reads (committed data) while the run's own
-    connection stores the points. Returns groups, linearity, signals and baselines."""
+def _read_alongside(reader: duckdb.DuckDBPyConnection, new: pd.DataFrame,
+                    settings: Settings) -> tuple[pd.DataFrame, ControlCheckTimes | None]:
+    """What a run reads while it computes the charts (on a cursor, on another thread): the linearity
+    fits of the verification checks among `new`, and the control-check times of its units from its
+    first check on (for the impact windows)."""
+    lin = fit_linearity(read_verification_checks(reader, new), settings.charts.verification_window_minutes)
+    if new.empty:
+        return lin, None
+    unit = new["instrument_id"]
+    present = np.flatnonzero(np.bincount(unit.cat.codes.to_numpy(), minlength=len(unit.cat.categories)))
+    return lin, control_check_times(reader, unit.cat.categories[present], new["measured_at"].min())
+
+
+def _signals_groups_baselines(out: dict, lin: pd.DataFrame, times: ControlCheckTimes | None, params: dict,
+                              settings: Settings, reader: duckdb.DuckDBPyConnection, run_id: int, first_b: int):
+    """The rest of a run once the points are computed: X-bar/S groups and their signals, every
+    signal's run length, p-value, fleet significance and impact window, and the baselines' ids and
+    re-baseline reasons. lin, times: _read_alongside's. reader: a cursor for reads (committed data)
+    while the run's own connection stores the points. Returns groups, signals and baselines."""
     pts = out["points"]
     window = settings.charts.replicate_window_minutes
     typed = pd.DataFrame({c: pts[c].array for c in ("check_id", "instrument_id", "level", "measured_at", "z")}
@@ -476,7 +490,6 @@ def _signals_groups_baselines(out: dict, ver: pd.DataFrame, params: dict, settin
                 extra.append(signal_frame(base, hit, chart, "limit",
                                           np.where(value[hit] > groups[hi].to_numpy()[hit], "up", "down"), value[hit]))
     sig = pd.concat([out["signals"], *extra], ignore_index=True) if extra else out["signals"]
-    lin = fit_linearity(ver, settings.charts.verification_window_minutes)
     if len(sig):
         cs = settings.charts
         # Signals in time order, then unit, level, chart and rule (names sort by their categorical codes).
@@ -503,7 +516,7 @@ def _signals_groups_baselines(out: dict, ver: pd.DataFrame, params: dict, settin
         sig["fleet_significant"] = pd.arrays.BooleanArray(fs > 0, np.isnan(fs))  # NULL: no p-value
         if out["onsets_stored"] is not None:
             _read_stored_onsets(reader, sig, out["onsets_stored"])
-        sig["impact_checks"] = impact_checks(reader, sig)
+        sig["impact_checks"] = impact_checks(reader, sig, times)
     bl = out["baselines"]
     # A baseline's parameters are its run's (chart_runs.parameters), stored once with the run.
     bl = bl.assign(baseline_id=np.arange(first_b, first_b + len(bl)), run_id=run_id, software_version=SOFTWARE_VERSION)
@@ -513,7 +526,7 @@ def _signals_groups_baselines(out: dict, ver: pd.DataFrame, params: dict, settin
             why = reader.execute("SELECT b.index, r.reason FROM _bf_rb b ASOF JOIN chart_rebaselines r "
                                  "ON b.instrument_id = r.instrument_id AND b.frozen_at >= r.rebaseline_at").df()
         bl.loc[why["index"].to_numpy(), "reason"] = ("rebaseline: " + why["reason"]).to_numpy()
-    return groups, lin, sig, bl
+    return groups, sig, bl
 
 
 def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
@@ -525,7 +538,7 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
     Returns an AnalysisRun with counts, duration and the parameters used. For its duration DuckDB
     may use db.ANALYSE_MEMORY_LIMIT and glibc keeps freed memory for reuse (pipeline/batch_memory.py).
     """
-    with memory_limit(con, ANALYSE_MEMORY_LIMIT), freed_memory_kept():
+    with memory_limit(con, ANALYSE_MEMORY_LIMIT), freed_memory_kept(), collector_paused():
         return _analyse(con, settings)
 
 
@@ -568,57 +581,62 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
             new = read_chart_input(con, with_rb, through, recharge)
             starts = _starts(new)
             state, own, tail = _load_state(con, _group_keys(new, starts))
-    ver = read_verification_checks(con, new)
     pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
     t_read = time.perf_counter() - t0
-    missing = np.isnan(pooled_lookup(new, pooled)) if len(pooled) else np.ones(len(new), dtype=bool)
-    if missing.any():
-        sub = new[missing] if not missing.all() else new
-        fresh = pooled_sigma(sub, starts if sub is new else _starts(sub)).assign(frozen_at=started,
-                                                                                 method=POOLED_METHOD)
-        con.execute("INSERT INTO chart_pooled_sigma SELECT technology, standard_kind, level, sigma, n_pairs, "
-                    "frozen_at, method FROM fresh")
-        pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
-    out = compute_charts(new, tail, state, own, pooled, params, starts=starts)
-    pts = out["points"]
-    run_id = int(con.execute("SELECT coalesce(max(run_id), 0) + 1 FROM chart_runs").fetchall()[0][0])
-    first_sig = int(con.execute("SELECT coalesce(max(signal_id), 0) + 1 FROM chart_signals").fetchall()[0][0])
-    first_b = int(con.execute("SELECT coalesce(max(baseline_id), 0) + 1 FROM chart_baselines").fetchall()[0][0])
-    data_end = None if new.empty else pd.Timestamp(new["measured_at"].max()).to_pydatetime()
-    st = out["state"]
     reader = con.cursor()
+    # One worker thread beside the computation: it reads (and fits linearity) while the charts are
+    # computed, then stores the points while the signals are computed. DuckDB works without the GIL.
     try:
-        with transaction(con):
-            # The points are stored while the rest of the run is computed: DuckDB inserts on its own
-            # threads without the GIL, and the two overlap (a full fleet run about 1 s shorter).
-            # Arrow tables: registered without a copy.
-            with ThreadPoolExecutor(max_workers=1) as pool:
+        with ThreadPoolExecutor(max_workers=1) as pool:
+            alongside = pool.submit(_read_alongside, reader, new, settings)
+            missing = np.isnan(pooled_lookup(new, pooled)) if len(pooled) else np.ones(len(new), dtype=bool)
+            if missing.any():
+                sub = new[missing] if not missing.all() else new
+                fresh = pooled_sigma(sub, starts if sub is new else _starts(sub)).assign(frozen_at=started,
+                                                                                         method=POOLED_METHOD)
+                con.execute("INSERT INTO chart_pooled_sigma SELECT technology, standard_kind, level, sigma, n_pairs, "
+                            "frozen_at, method FROM fresh")
+                pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
+            out = compute_charts(new, tail, state, own, pooled, params, starts=starts)
+            pts = out["points"]
+            run_id = int(con.execute("SELECT coalesce(max(run_id), 0) + 1 FROM chart_runs").fetchall()[0][0])
+            first_sig = int(con.execute("SELECT coalesce(max(signal_id), 0) + 1 FROM chart_signals").fetchall()[0][0])
+            first_b = int(con.execute("SELECT coalesce(max(baseline_id), 0) + 1 FROM chart_baselines").fetchall()[0][0])
+            data_end = None if new.empty else pd.Timestamp(new["measured_at"].max()).to_pydatetime()
+            st = out["state"]
+            lin, times = alongside.result()
+            with transaction(con):
+                # Arrow tables: registered without a copy.
                 storing = pool.submit(_append, con, "chart_points", pa.Table.from_pandas(pts, preserve_index=False))
-                groups, lin, sig, bl = _signals_groups_baselines(out, ver, params, settings, reader, run_id, first_b)
+                try:
+                    groups, sig, bl = _signals_groups_baselines(out, lin, times, params, settings, reader, run_id,
+                                                                first_b)
+                finally:  # the transaction ends (commit or rollback) only once the insert is done with it
+                    wait([storing])
                 t_compute = time.perf_counter() - t0 - t_read
-            storing.result()
-            with registered(con, "_bf_state_keys", st):
-                con.execute("DELETE FROM chart_state t USING _bf_state_keys s WHERE t.instrument_id = s.instrument_id "
-                            "AND t.level = s.level AND t.baseline_period = s.baseline_period")
-            _append(con, "chart_state", st)
-            if len(bl):
-                _append(con, "chart_baselines", bl)
-            if len(sig):
-                sig = sig.drop(columns=["position"]).assign(
-                    signal_id=np.arange(first_sig, first_sig + len(sig)), run_id=run_id, created_at=started)
-                _append(con, "chart_signals", pa.Table.from_pandas(sig, preserve_index=False))
-            if len(groups):
-                _append(con, "chart_groups", groups.assign(run_id=run_id))
-            if len(lin):  # a session charted again (late data) keeps its stored fit
-                _append(con, "chart_linearity", lin.assign(run_id=run_id), or_ignore=True)
-            duration = time.perf_counter() - t0
-            con.execute("INSERT INTO chart_runs (run_id, started_at, duration_s, mode, n_new_checks, n_groups, "
-                        "n_signals, n_baselines, data_end, parameters, software_version, checks_through, "
-                        "checks_counted, ind_lcl, ind_ucl, mr_ucl) VALUES ($id, $at, $d, $mode, $n, $g, $s, $b, "
-                        "$end, $p, $v, $through, $counted, $ind_lcl, $ind_ucl, $mr_ucl)",
-                        {"id": run_id, "at": started, "d": duration, "mode": mode, "n": len(pts), "g": len(st),
-                         "s": len(sig), "b": len(bl), "end": data_end, "p": json.dumps(params, default=str),
-                         "v": SOFTWARE_VERSION, "through": top, "counted": n_top} | out["limits"])
+                storing.result()
+                with registered(con, "_bf_state_keys", st):
+                    con.execute("DELETE FROM chart_state t USING _bf_state_keys s WHERE t.instrument_id = s.instrument_id "
+                                "AND t.level = s.level AND t.baseline_period = s.baseline_period")
+                _append(con, "chart_state", st)
+                if len(bl):
+                    _append(con, "chart_baselines", bl)
+                if len(sig):
+                    sig = sig.drop(columns=["position"]).assign(
+                        signal_id=np.arange(first_sig, first_sig + len(sig)), run_id=run_id, created_at=started)
+                    _append(con, "chart_signals", pa.Table.from_pandas(sig, preserve_index=False))
+                if len(groups):
+                    _append(con, "chart_groups", groups.assign(run_id=run_id))
+                if len(lin):  # a session charted again (late data) keeps its stored fit
+                    _append(con, "chart_linearity", lin.assign(run_id=run_id), or_ignore=True)
+                duration = time.perf_counter() - t0
+                con.execute("INSERT INTO chart_runs (run_id, started_at, duration_s, mode, n_new_checks, n_groups, "
+                            "n_signals, n_baselines, data_end, parameters, software_version, checks_through, "
+                            "checks_counted, ind_lcl, ind_ucl, mr_ucl) VALUES ($id, $at, $d, $mode, $n, $g, $s, $b, "
+                            "$end, $p, $v, $through, $counted, $ind_lcl, $ind_ucl, $mr_ucl)",
+                            {"id": run_id, "at": started, "d": duration, "mode": mode, "n": len(pts), "g": len(st),
+                             "s": len(sig), "b": len(bl), "end": data_end, "p": json.dumps(params, default=str),
+                             "v": SOFTWARE_VERSION, "through": top, "counted": n_top} | out["limits"])
     finally:
         reader.close()
     return AnalysisRun(run_id=run_id, mode=mode, n_new_checks=len(pts), n_groups=len(st), n_signals=len(sig),

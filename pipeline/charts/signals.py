@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 import pandas as pd
 from scipy.stats import norm
@@ -45,45 +47,69 @@ def fleet_significance(p: np.ndarray, q: float) -> np.ndarray:
     return out
 
 
-def impact_checks(con, sig: pd.DataFrame) -> np.ndarray:
+SHIFT = np.int64(1) << 46  # key = unit code x SHIFT + microseconds after lo: 2^46 us is about 2,200 years
+
+
+@dataclass(frozen=True)
+class ControlCheckTimes:
+    """The control-check times of some units from `lo` on, as sorted int64 keys: the unit's
+    position in `units` x SHIFT + microseconds after `lo`."""
+
+    units: pd.Index
+    lo: np.datetime64
+    keys: np.ndarray
+
+
+def control_check_times(con, units, lo) -> ControlCheckTimes:
+    """One read of the control-check times of `units` (names) at or after `lo`, keyed and sorted by DuckDB."""
+    names = pd.Index(np.asarray(units, dtype=object)).astype(str)
+    lo = np.datetime64(pd.Timestamp(lo).to_datetime64(), "us")
+    frame = pd.DataFrame({"instrument_id": np.asarray(names, dtype=object), "code": np.arange(len(names), dtype=np.int64)})
+    with registered(con, "_bf_signal_units", frame):
+        keys = con.execute("SELECT u.code * $shift + (epoch_us(c.measured_at) - $lo_us) AS key FROM checks c "
+                           "JOIN _bf_signal_units u USING (instrument_id) "
+                           "WHERE c.check_type = 'control' AND c.measured_at >= $lo ORDER BY key",
+                           {"lo": pd.Timestamp(lo).to_pydatetime(), "shift": int(SHIFT),
+                            "lo_us": int(lo.astype(np.int64))}).fetchnumpy()["key"]
+    return ControlCheckTimes(names, lo, np.asarray(keys, dtype=np.int64))
+
+
+def impact_checks(con, sig: pd.DataFrame, times: ControlCheckTimes | None = None) -> np.ndarray:
     """Control checks of each signal's unit from its onset (or the signal) to the signal, inclusive.
 
-    One read of the units' control-check times, then two binary searches per signal on keys
-    (unit code, microseconds), so a fleet's million signals cost seconds, not a range join.
+    Two binary searches per signal on the keys of control_check_times, so a fleet's million
+    signals cost seconds, not a range join. `times`: read ahead by the caller (analyse reads them
+    while it computes the charts); read here if absent or if it lacks a unit or an early enough start.
     """
     if sig.empty:
         return np.empty(0, dtype=np.int64)
     unit = sig["instrument_id"]
     if isinstance(unit.dtype, pd.CategoricalDtype):  # the units present, by their codes: no strings made
-        codes = unit.cat.codes.to_numpy()
-        present = np.flatnonzero(np.bincount(codes, minlength=len(unit.cat.categories)))
-        names = unit.cat.categories[present].astype(str)
+        cat_codes, categories = unit.cat.codes.to_numpy(), unit.cat.categories
     else:
-        codes, names = pd.factorize(unit.astype(str))
-        present = np.arange(len(names))
+        cat_codes, categories = pd.factorize(unit.astype(str))
+    present = np.flatnonzero(np.bincount(cat_codes, minlength=len(categories)))
+    names = categories[present].astype(str)
     onset = sig["onset_at"].fillna(sig["measured_at"]).to_numpy(dtype="datetime64[us]")
     at = sig["measured_at"].to_numpy(dtype="datetime64[us]")
-    lo = onset.min()
-    shift = np.int64(1) << 46  # microseconds after `lo`: 2^46 us is about 2,200 years
-    units = pd.DataFrame({"instrument_id": np.asarray(names, dtype=object), "code": present.astype(np.int64)})
-    with registered(con, "_bf_signal_units", units):  # the same keys, made and sorted by DuckDB
-        keys = con.execute("SELECT u.code * $shift + (epoch_us(c.measured_at) - $lo_us) AS key FROM checks c "
-                           "JOIN _bf_signal_units u USING (instrument_id) "
-                           "WHERE c.check_type = 'control' AND c.measured_at >= $lo ORDER BY key",
-                           {"lo": pd.Timestamp(lo).to_pydatetime(), "shift": int(shift),
-                            "lo_us": int(lo.astype(np.int64))}).fetchnumpy()["key"]
-    keys = np.asarray(keys, dtype=np.int64)
+    where = times.units.get_indexer(names) if times is not None else None
+    if times is None or (where < 0).any() or onset.min() < times.lo:
+        times = control_check_times(con, names, onset.min())
+        where = np.arange(len(names))
+    code_of = np.zeros(len(categories), dtype=np.int64)
+    code_of[present] = where
+    keys, lo = times.keys, times.lo
 
     def key(code, t):
-        return np.asarray(code, dtype=np.int64) * shift + (np.asarray(t, dtype="datetime64[us]") - lo).astype(np.int64)
+        return code * SHIFT + (np.asarray(t, dtype="datetime64[us]") - lo).astype(np.int64)
 
     # Needles in unit order walk the keys nearly in order (searchsorted is correct in any order, and
     # fast when it goes through the keys in step); a stable sort of small integer codes is a radix sort.
-    order = np.argsort(codes, kind="stable")
-    codes = codes[order]
+    order = np.argsort(cat_codes, kind="stable")
+    codes = code_of[cat_codes[order]]
 
-    def search(times, side):
-        out = np.empty(len(times), dtype=np.int64)
-        out[order] = np.searchsorted(keys, key(codes, times[order]), side=side)
+    def search(t, side):
+        out = np.empty(len(t), dtype=np.int64)
+        out[order] = np.searchsorted(keys, key(codes, t[order]), side=side)
         return out
     return search(at, "right") - search(onset, "left")
