@@ -100,8 +100,9 @@ def loop_charts(frame: pd.DataFrame, controls: dict, params: dict, replicate_min
                             "ewma_ucl", "center", "sigma", "own_sigma")}
     signals, baselines, states, groups, lines = [], [], [], [], []
     for unit, u in frame.groupby("instrument_id", sort=False, observed=True):
-        unit_signals = []  # (check_id, measured_at, level, position, chart, rule, direction, size, onset_at)
-        unit_z, unit_pos = [], []
+        # (check_id, measured_at, level, baseline_period, position, chart, rule, direction, size, onset_at)
+        unit_signals = []
+        unit_z, unit_pos, unit_period = [], [], []
         for (level, period), g in u.groupby(["level", "baseline_period"], sort=False):
             x = g["relative_error"].to_numpy()
             t = g["measured_at"].to_numpy()
@@ -124,11 +125,11 @@ def loop_charts(frame: pd.DataFrame, controls: dict, params: dict, replicate_min
             zs = pd.Series(z)
             mr = zs.diff().abs().to_numpy()
             for i in np.flatnonzero(mr > mr_limit):
-                unit_signals.append((ids[i], t[i], level, i + 1, "moving_range", "limit", "up", mr[i], None))
+                unit_signals.append((ids[i], t[i], level, period, i + 1, "moving_range", "limit", "up", mr[i], None))
             for rule, side, hit in _we_rules(zs):
                 start = (hit & ~hit.shift(fill_value=False)).to_numpy()
                 for i in np.flatnonzero(start):
-                    unit_signals.append((ids[i], t[i], level, i + 1, "individuals", rule, side, z[i], None))
+                    unit_signals.append((ids[i], t[i], level, period, i + 1, "individuals", rule, side, z[i], None))
             # Tabular CUSUM, both sides, with the counts of checks since each side was last zero.
             cu = np.empty(n)
             cl = np.empty(n)
@@ -140,9 +141,11 @@ def loop_charts(frame: pd.DataFrame, controls: dict, params: dict, replicate_min
                 run_up = run_up + 1 if new_up > 0 else 0
                 run_lo = run_lo + 1 if new_lo > 0 else 0
                 if new_up > h and not c_up > h:
-                    unit_signals.append((ids[i], t[i], level, i + 1, "cusum", "h", "up", new_up, t[i - run_up + 1]))
+                    unit_signals.append((ids[i], t[i], level, period, i + 1, "cusum", "h", "up", new_up,
+                                         t[i - run_up + 1]))
                 if new_lo > h and not c_lo > h:
-                    unit_signals.append((ids[i], t[i], level, i + 1, "cusum", "h", "down", new_lo, t[i - run_lo + 1]))
+                    unit_signals.append((ids[i], t[i], level, period, i + 1, "cusum", "h", "down", new_lo,
+                                         t[i - run_lo + 1]))
                 cu[i], cl[i] = new_up, new_lo
                 c_up, c_lo = new_up, new_lo
             # EWMA from 0 with exact limits.
@@ -150,7 +153,7 @@ def loop_charts(frame: pd.DataFrame, controls: dict, params: dict, replicate_min
             half = L * np.sqrt(lam / (2 - lam) * (1 - (1 - lam) ** (2 * r)))
             for side, beyond in (("up", e > half), ("down", e < -half)):
                 for i in np.flatnonzero(beyond & ~np.r_[False, beyond[:-1]]):
-                    unit_signals.append((ids[i], t[i], level, i + 1, "ewma", "limit", side, e[i], None))
+                    unit_signals.append((ids[i], t[i], level, period, i + 1, "ewma", "limit", side, e[i], None))
             baselines.append((unit, level, period, 1, t[0], pooled[0], ids[0]))
             if n >= n_min:
                 baselines.append((unit, level, period, 2, t[n_min - 1], sigma, ids[n_min - 1]))
@@ -162,26 +165,29 @@ def loop_charts(frame: pd.DataFrame, controls: dict, params: dict, replicate_min
                 cols[c].append(v)
             unit_z.append(z)
             unit_pos.append(r)
+            unit_period.append(np.full(n, period))
         # X-bar and S of replicate checks (same level and type, successive checks within the window).
         d = pd.DataFrame({"level": u["level"].to_numpy(), "check_type": u["check_type"].to_numpy(),
                           "t": u["measured_at"].to_numpy(), "z": np.concatenate(unit_z),
-                          "check_id": u["check_id"].to_numpy(), "position": np.concatenate(unit_pos)})
+                          "check_id": u["check_id"].to_numpy(), "position": np.concatenate(unit_pos),
+                          "period": np.concatenate(unit_period)})
         d = d.sort_values(["level", "check_type", "t"], kind="stable")
         brk = ((d["level"] != d["level"].shift()) | (d["check_type"] != d["check_type"].shift())
                | (d["t"].diff() > window))
         agg = d.groupby(brk.cumsum().to_numpy()).agg(
             n=("z", "size"), xbar=("z", "mean"), s=("z", "std"), check_id=("check_id", "last"), t=("t", "last"),
-            level=("level", "last"), check_type=("check_type", "last"), position=("position", "last"))
+            level=("level", "last"), check_type=("check_type", "last"), position=("position", "last"),
+            period=("period", "last"))
         agg = agg[agg["n"] >= 2]
         for row in agg.itertuples(index=False):
             c4n = c4(min(int(row.n), 100))
             s_lo, s_hi = max(0.0, c4n - 3 * np.sqrt(1 - c4n ** 2)), c4n + 3 * np.sqrt(1 - c4n ** 2)
             groups.append((unit, row.level, row.check_type, row.check_id, row.n, row.xbar, row.s))
             if abs(row.xbar) > 3 / np.sqrt(row.n):
-                unit_signals.append((row.check_id, row.t, row.level, row.position, "xbar", "limit",
+                unit_signals.append((row.check_id, row.t, row.level, row.period, row.position, "xbar", "limit",
                                      "up" if row.xbar > 0 else "down", row.xbar, None))
             if row.s > s_hi or row.s < s_lo:
-                unit_signals.append((row.check_id, row.t, row.level, row.position, "s", "limit",
+                unit_signals.append((row.check_id, row.t, row.level, row.period, row.position, "s", "limit",
                                      "up" if row.s > s_hi else "down", row.s, None))
         # Linearity of each verification session (checks of the unit within the gap of each other).
         v = u[u["check_type"] == "verification"].sort_values("measured_at", kind="stable")
@@ -210,17 +216,17 @@ def loop_charts(frame: pd.DataFrame, controls: dict, params: dict, replicate_min
                     lines.append((unit, started, ended, nc, nl_, b, b - hb, b + hb, a0, a0 - ha, a0 + ha, sd,
                                   abs(b - 1) > hb, abs(a0) > ha))
         # Impact window of each signal, and the run length it is tested on (checks since the
-        # previous signal of the same chart, rule and side, or since the segment began).
+        # previous signal of the same chart, rule and side in the segment, or since the segment began).
         if unit_signals:
-            s = pd.DataFrame(unit_signals, columns=["check_id", "measured_at", "level", "position", "chart", "rule",
-                                                    "direction", "size", "onset_at"])
+            s = pd.DataFrame(unit_signals, columns=["check_id", "measured_at", "level", "baseline_period", "position",
+                                                    "chart", "rule", "direction", "size", "onset_at"])
             s = s.sort_values(["measured_at", "level", "chart", "rule"], kind="stable").reset_index(drop=True)
             times = controls.get(unit, np.empty(0, dtype="datetime64[us]"))
             at = s["measured_at"].to_numpy(dtype="datetime64[us]")
             onset = s["onset_at"].fillna(s["measured_at"]).to_numpy(dtype="datetime64[us]")
             s["impact_checks"] = np.searchsorted(times, at, side="right") - np.searchsorted(times, onset, side="left")
-            s = s.sort_values(["level", "chart", "rule", "direction", "position"], kind="stable")
-            prev = s.groupby(["level", "chart", "rule", "direction"], sort=False)["position"].shift()
+            s = s.sort_values(["level", "baseline_period", "chart", "rule", "direction", "position"], kind="stable")
+            prev = s.groupby(["level", "baseline_period", "chart", "rule", "direction"], sort=False)["position"].shift()
             s["run_length"] = np.where(prev.isna() | (prev >= s["position"]), s["position"],
                                        s["position"] - prev.fillna(0)).astype(np.int64)
             signals.append(s.assign(instrument_id=unit))

@@ -33,7 +33,7 @@ from pipeline.charts.xbar_s import xbar_s_groups
 from pipeline.charts.individuals import moving_range, mr_ucl_standardised
 from pipeline.charts.run_rules import RULES, apply_run_rules, select_rules
 from pipeline.charts.signals import (ControlCheckTimes, control_check_times, fleet_significance, impact_checks,
-                                     signal_p_values)
+                                     signal_p_values, signal_run_lengths)
 from pipeline.db import ANALYSE_MEMORY_LIMIT, memory_limit, registered, sql_text, transaction
 from pipeline.settings import Settings
 
@@ -256,7 +256,7 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     prev_half = np.where(n0g > 0, L * np.sqrt(lam / (2 - lam) * (1 - (1 - lam) ** (2 * np.maximum(n0g, 1)))), np.inf)
     sig_frames = []
     base = {c: points[c].array if c == "instrument_id" else points[c].to_numpy()
-            for c in ("instrument_id", "level", "check_id", "measured_at", "position")}
+            for c in ("instrument_id", "level", "baseline_period", "check_id", "measured_at", "position")}
     measured_new = base["measured_at"]
     # Page's onset: the check after the side was last zero. Where that check was charted by an
     # earlier run, the signal names its stored point (onsets_stored) and analyse reads its time.
@@ -482,7 +482,8 @@ def _signals_groups_baselines(out: dict, lin: pd.DataFrame, times: ControlCheckT
     if len(groups):
         base = {"instrument_id": groups["instrument_id"].array, "level": groups["level"].to_numpy(),
                 "check_id": groups["check_id"].to_numpy(), "measured_at": groups["measured_at"].to_numpy(),
-                "position": pts["position"].to_numpy()[group_rows]}
+                "position": pts["position"].to_numpy()[group_rows],
+                "baseline_period": pts["baseline_period"].to_numpy()[group_rows]}
         for chart, stat, lo, hi in (("xbar", "xbar", "xbar_lcl", "xbar_ucl"), ("s", "s", "s_lcl", "s_ucl")):
             value = groups[stat].to_numpy(dtype=float)
             hit = np.flatnonzero((value > groups[hi].to_numpy()) | (value < groups[lo].to_numpy()))
@@ -497,19 +498,10 @@ def _signals_groups_baselines(out: dict, lin: pd.DataFrame, times: ControlCheckT
         when = sig["measured_at"].to_numpy().astype(np.int64)
         by = np.lexsort((codes["rule"], codes["chart"], codes["level"], codes["instrument_id"], when))
         sig = sig.take(by).reset_index(drop=True)
-        # Run length of each signal: checks since the previous signal of the same chart, rule and
-        # side in this run (or since the segment began), the in-control run length it is tested on.
-        sig["position"] = sig["position"].fillna(1).astype(np.int64)
-        position = sig["position"].to_numpy()
-        series = [codes[c][by] for c in ("instrument_id", "level", "chart", "rule", "direction")]
-        order = np.lexsort([position] + series[::-1])
-        same = np.zeros(len(order), dtype=bool)
-        same[1:] = np.logical_and.reduce([c[order][1:] == c[order][:-1] for c in series])
-        pos_o = position[order]
-        prev = np.where(same, np.r_[0, pos_o[:-1]], 0)
-        run = np.empty(len(order), dtype=np.int64)
-        run[order] = np.where(~same | (prev >= pos_o), pos_o, pos_o - prev)
-        sig["position"] = run
+        sig["position"] = signal_run_lengths(
+            [codes[c][by] for c in ("instrument_id", "level")] + [_sort_codes(sig["baseline_period"])]
+            + [codes[c][by] for c in ("chart", "rule", "direction")],
+            sig["position"].fillna(1).to_numpy(dtype=np.int64))
         sig["p_value"] = signal_p_values(sig, k=params["cusum"]["k"], h=params["cusum"]["h"],
                                          lam=params["ewma"]["lam"], L=params["ewma"]["L"])
         fs = fleet_significance(sig["p_value"].to_numpy(), cs.fleet_fdr_q)
@@ -622,7 +614,7 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
                 if len(bl):
                     _append(con, "chart_baselines", bl)
                 if len(sig):
-                    sig = sig.drop(columns=["position"]).assign(
+                    sig = sig.drop(columns=["position", "baseline_period"]).assign(
                         signal_id=np.arange(first_sig, first_sig + len(sig)), run_id=run_id, created_at=started)
                     _append(con, "chart_signals", pa.Table.from_pandas(sig, preserve_index=False))
                 if len(groups):

@@ -11,13 +11,32 @@ from scipy.stats import norm
 from pipeline.charts.fleet_alarms import benjamini_hochberg_arrays, cusum_signal_p_values, ewma_signal_p_values
 from pipeline.db import registered
 
-SIGNAL_COLUMNS = ["instrument_id", "level", "check_id", "measured_at", "chart", "rule", "direction",
-                  "size", "onset_at", "p_value"]
-
 
 def crossings(stat: np.ndarray, limit: np.ndarray | float, prev_stat: np.ndarray) -> np.ndarray:
     """Rows where a statistic goes beyond its limit from inside (one signal per excursion)."""
     return (stat > limit) & ~(prev_stat > limit)
+
+
+def signal_run_lengths(series: list[np.ndarray], position: np.ndarray) -> np.ndarray:
+    """The run length each signal is tested on: checks since the previous signal of its series
+    (unit, level, baseline segment, chart, rule, side), or since its segment began (its position)
+    for the series' first signal in the run.
+
+    series: integer codes of those columns, one array each; rows in time order, and so in position
+    order within a segment. position: each signal's 1-based check number in its segment.
+    """
+    position = np.asarray(position, dtype=np.int64)
+    # Small codes sort by radix, and a stable sort keeps each series' rows in time order.
+    keys = [c.astype(np.int16) if len(c) and 0 <= c.min() and c.max() < 2**15 else c
+            for c in map(np.asarray, series)]
+    order = np.lexsort(keys[::-1])
+    same = np.zeros(len(order), dtype=bool)
+    same[1:] = np.logical_and.reduce([k[order][1:] == k[order][:-1] for k in keys])
+    pos = position[order]
+    prev = np.r_[0, pos[:-1]]
+    run = np.empty(len(order), dtype=np.int64)
+    run[order] = np.where(same & (prev < pos), pos - prev, pos)
+    return run
 
 
 def signal_p_values(sig: pd.DataFrame, *, k: float, h: float, lam: float, L: float) -> np.ndarray:
@@ -64,7 +83,8 @@ def control_check_times(con, units, lo) -> ControlCheckTimes:
     """One read of the control-check times of `units` (names) at or after `lo`, keyed and sorted by DuckDB."""
     names = pd.Index(np.asarray(units, dtype=object)).astype(str)
     lo = np.datetime64(pd.Timestamp(lo).to_datetime64(), "us")
-    frame = pd.DataFrame({"instrument_id": np.asarray(names, dtype=object), "code": np.arange(len(names), dtype=np.int64)})
+    frame = pd.DataFrame({"instrument_id": np.asarray(names, dtype=object),
+                          "code": np.arange(len(names), dtype=np.int64)})
     with registered(con, "_bf_signal_units", frame):
         keys = con.execute("SELECT u.code * $shift + (epoch_us(c.measured_at) - $lo_us) AS key FROM checks c "
                            "JOIN _bf_signal_units u USING (instrument_id) "
