@@ -46,6 +46,7 @@ from __future__ import annotations
 
 import json
 import os
+import resource
 import shutil
 import subprocess
 import sys
@@ -323,23 +324,28 @@ def _timed_analyse(path: str) -> None:
     from pipeline.settings import Settings
 
     con = open_database(path)
+    before = resource.getrusage(resource.RUSAGE_SELF)
     t0 = time.perf_counter()
     run = analyse_fleet(con, Settings())
     seconds = time.perf_counter() - t0
+    after = resource.getrusage(resource.RUSAGE_SELF)
     con.close()
-    print(json.dumps({"seconds": seconds, "run": asdict(run)}, default=str))
+    cpu = {"user": after.ru_utime - before.ru_utime, "kernel": after.ru_stime - before.ru_stime,
+           "faults": after.ru_minflt - before.ru_minflt}
+    print(json.dumps({"seconds": seconds, "cpu": cpu, "run": asdict(run)}, default=str))
 
 
-def _analyse_in_new_process(path: Path) -> tuple[SimpleNamespace, float]:
+def _analyse_in_new_process(path: Path) -> tuple[SimpleNamespace, float, dict]:
     """analyse_fleet timed in a process of its own, as `breathfleet run` (or `analyse`) runs it after
     an ingest: numpy imported after the console script's preparation (pipeline/batch_memory.py),
-    the database freshly opened, not the memory state this
-    process is left in by preparing the fleet. Returns the run (its fields) and its seconds."""
+    the database freshly opened, not the memory state this process is left in by preparing the
+    fleet. Returns the run (its fields), its seconds, and its CPU seconds (user, kernel) and page
+    faults: the host's speed at handling page faults varies, and with it the engine's time."""
     done = subprocess.run([sys.executable, "-c", "from pipeline.batch_memory import prepare_batch_process; "
                            "prepare_batch_process(); from benchmarks.bench_20_charts import _timed_analyse; "
                            f"_timed_analyse({str(path)!r})"], check=True, stdout=subprocess.PIPE, text=True)
     out = json.loads(done.stdout.strip().splitlines()[-1])
-    return SimpleNamespace(**out["run"]), out["seconds"]
+    return SimpleNamespace(**out["run"]), out["seconds"], out["cpu"]
 
 
 def main() -> None:
@@ -389,7 +395,7 @@ def main() -> None:
         if i:
             shutil.copyfile(prepared, work)
             os.sync()
-        full, t_full = _analyse_in_new_process(work)
+        full, t_full, cpu = _analyse_in_new_process(work)
         con = open_database(work)
         if not i:
             through = con.execute("SELECT checks_through FROM chart_runs WHERE run_id = $r",
@@ -406,14 +412,15 @@ def main() -> None:
         tm = full.timings
         loop_work = t_sample * full.n_new_checks / max(len(frame), 1)
         rounds.append({"full": t_full, "read": tm["read"], "compute": tm["compute"], "store": tm["store"],
-                       "sample": t_sample, "loop_work": loop_work, "loop": tm["read"] + loop_work + tm["store"]})
+                       "sample": t_sample, "loop_work": loop_work, "loop": tm["read"] + loop_work + tm["store"],
+                       "cpu": cpu})
     # The week arrives as an ingest delivers it: new check ids above every stored one. The
     # incremental time includes bringing check_results up to date for it.
     con = open_database(work)
     con.execute("UPDATE _bench_week SET check_id = check_id + (SELECT max(check_id) FROM checks)")
     con.execute("INSERT INTO checks SELECT * FROM _bench_week")
     con.close()
-    inc, t_inc = _analyse_in_new_process(work)
+    inc, t_inc, _ = _analyse_in_new_process(work)
     prepared.unlink()
 
     def med(values):
@@ -421,7 +428,8 @@ def main() -> None:
     print(f"fleet: {full.n_new_checks + inc.n_new_checks:,} charted checks, {full.n_groups:,} chart groups ({src.name})")
     for i, r in enumerate(rounds, 1):
         print(f"round {i}: full run {r['full']:6.2f} s (read {r['read']:.2f}, compute {r['compute']:.2f}, "
-              f"store {r['store']:.2f}); loop sample {r['sample']:.2f} s -> loop {r['loop']:.1f} s; "
+              f"store {r['store']:.2f}; CPU user {r['cpu']['user']:.1f} s, kernel {r['cpu']['kernel']:.1f} s, "
+              f"{r['cpu']['faults']:,} page faults); loop sample {r['sample']:.2f} s -> loop {r['loop']:.1f} s; "
               f"{r['loop'] / r['full']:.1f} x end to end, {r['loop_work'] / r['compute']:.1f} x work only")
     full_s = med([r["full"] for r in rounds])
     e2e = med([r["loop"] / r["full"] for r in rounds])

@@ -435,6 +435,17 @@ def _load_state(con, keys: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame, pd
     return state, own, tail
 
 
+def _arrow(frame: pd.DataFrame, nullable: tuple[str, ...] = ()) -> pa.Table:
+    """The frame as an Arrow table (registered by DuckDB without a copy). A float NaN is NULL only
+    in the `nullable` columns: pa.Table.from_pandas scans every float column of a fleet for NaN."""
+    def column(name):
+        col = frame[name]
+        if not isinstance(col.dtype, np.dtype) or col.dtype == object:  # categorical, masked, strings
+            return pa.array(col)
+        return pa.array(col.to_numpy(), from_pandas=name in nullable)
+    return pa.table({name: column(name) for name in frame.columns})
+
+
 def _append(con: duckdb.DuckDBPyConnection, table: str, rows, *, or_ignore: bool = False) -> None:
     """Insert a frame (or Arrow table) into `table` by column name."""
     name = f"_bf_new_{table}"
@@ -599,7 +610,7 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
             lin, times = alongside.result()
             with transaction(con):
                 # Arrow tables: registered without a copy.
-                storing = pool.submit(_append, con, "chart_points", pa.Table.from_pandas(pts, preserve_index=False))
+                storing = pool.submit(_append, con, "chart_points", _arrow(pts, nullable=("moving_range",)))
                 try:
                     groups, sig, bl = _signals_groups_baselines(out, lin, times, params, settings, reader, run_id,
                                                                 first_b)
