@@ -467,9 +467,13 @@ def _read_stored_onsets(reader: duckdb.DuckDBPyConnection, sig: pd.DataFrame, on
 
 def _read_alongside(reader: duckdb.DuckDBPyConnection, new: pd.DataFrame,
                     settings: Settings) -> tuple[pd.DataFrame, ControlCheckTimes | None]:
-    """What a run reads while it computes the charts (on a cursor, on another thread): the linearity
-    fits of the verification checks among `new`, and the control-check times of its units from its
-    first check on (for the impact windows)."""
+    """What a run prepares while it computes the charts (on another thread; reads on a cursor): the
+    compiled kernels, loaded from numba's cache first, as the charts need them within a second; the
+    linearity fits of the verification checks among `new`; and the control-check times of its
+    units from its first check on (for the impact windows)."""
+    if not new.empty:
+        from pipeline.charts import kernels
+        kernels.load_all()
     lin = fit_linearity(read_verification_checks(reader, new), settings.charts.verification_window_minutes)
     if new.empty:
         return lin, None
@@ -587,8 +591,9 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
     pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
     t_read = time.perf_counter() - t0
     reader = con.cursor()
-    # One worker thread beside the computation: it reads (and fits linearity) while the charts are
-    # computed, then stores the points while the signals are computed. DuckDB works without the GIL.
+    # One worker thread beside the computation: it loads the kernels, reads and fits linearity while
+    # the charts are computed (_read_alongside), then stores the points while the signals are
+    # computed. DuckDB and numba's loader work mostly without the GIL.
     try:
         with ThreadPoolExecutor(max_workers=1) as pool:
             alongside = pool.submit(_read_alongside, reader, new, settings)
