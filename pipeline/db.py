@@ -21,6 +21,7 @@ from pathlib import Path
 from typing import Any
 
 import duckdb
+import numpy as np
 import pandas as pd
 
 from pipeline.errors import DatabaseLockedError, InputError
@@ -144,6 +145,33 @@ def create_views(con: duckdb.DuckDBPyConnection) -> None:
             path, exc = failed[0]
             raise InputError(f"view cannot be created: {exc}", file=str(path))
         pending = [path for path, _ in failed]
+
+
+def fetch_arrays(con: duckdb.DuckDBPyConnection, query: str, params: dict | None = None, *, capacity: int,
+                 batch_rows: int = 1 << 19) -> dict[str, np.ndarray]:
+    """A query's result as one numpy array per column, streamed batch by batch (Arrow) into arrays
+    allocated for `capacity` rows, an upper bound on the result (more rows still work, at the cost
+    of a copy). Pages beyond the result are never touched; a result under half the capacity is
+    copied into arrays of its own size. The columns must hold no NULL.
+
+    Why not fetchnumpy: it materialises the whole result inside DuckDB, then converts it. For the
+    chart engine's sorted read of 9.3 million checks, streaming took 1.30-1.41 s against 1.84-1.94 s
+    and touched 0.6 GB less memory (350 thousand page faults against 505 thousand).
+    """
+    reader = con.sql(query, params=params).to_arrow_reader(batch_rows)
+    out = {f.name: np.empty(capacity, dtype=f.type.to_pandas_dtype()) for f in reader.schema}
+    n = 0
+    for batch in reader:
+        m = batch.num_rows
+        if n + m > capacity:
+            capacity = max(2 * capacity, n + m)
+            out = {name: np.resize(a[:n], capacity) for name, a in out.items()}
+        for name, column in zip(batch.schema.names, batch.columns):
+            if column.null_count:
+                raise ValueError(f"fetch_arrays: column {name} has NULL values")
+            out[name][n:n + m] = column.to_numpy(zero_copy_only=False)
+        n += m
+    return {name: a[:n].copy() if n < len(a) // 2 else a[:n] for name, a in out.items()}
 
 
 def query_df(con: duckdb.DuckDBPyConnection, name: str, **params: Any) -> pd.DataFrame:

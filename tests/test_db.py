@@ -1,6 +1,7 @@
 """Database: migrations are recorded and safe to re-run; snapshots are published atomically."""
 
 import duckdb
+import numpy as np
 import pytest
 
 from pipeline.db import connect, connect_reader, migrate, open_database, publish_snapshot, snapshot_path
@@ -38,3 +39,24 @@ def test_second_writer_gets_a_clear_lock_error(tmp_path):
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
     assert out.startswith("LOCKED") and "database is locked by another breathfleet process" in out
     writer.close()
+
+
+def test_fetch_arrays_equals_fetchnumpy_whatever_the_capacity():
+    from pipeline.db import fetch_arrays
+
+    con = duckdb.connect(":memory:")
+    con.execute("CREATE TABLE t AS SELECT i::BIGINT AS id, (i % 7)::TINYINT AS code, (i % 300)::SMALLINT AS small, "
+                "(i * 0.5)::DOUBLE AS x, TIMESTAMP '2026-01-01' + to_microseconds(i) AS at FROM range(5000) r(i)")
+    query = "SELECT * FROM t WHERE id >= $lo ORDER BY code, id"
+    want = con.execute(query, {"lo": 10}).fetchnumpy()
+    for capacity, batch_rows in ((5000, 1 << 19), (4990, 512), (100, 512), (0, 64), (100_000, 512)):
+        got = fetch_arrays(con, query, {"lo": 10}, capacity=capacity, batch_rows=batch_rows)
+        assert list(got) == list(want)
+        for name, column in want.items():
+            assert got[name].dtype == np.asarray(column).dtype, name
+            assert np.array_equal(got[name], np.asarray(column)), name
+    empty = fetch_arrays(con, query, {"lo": 10**6}, capacity=5000)
+    assert {name: len(a) for name, a in empty.items()} == dict.fromkeys(want, 0)
+    assert empty["at"].dtype == np.dtype("datetime64[us]")
+    with pytest.raises(ValueError, match="column x has NULL"):
+        fetch_arrays(con, "SELECT id, CASE WHEN id = 3 THEN NULL ELSE x END AS x FROM t", capacity=5000)

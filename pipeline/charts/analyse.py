@@ -34,7 +34,7 @@ from pipeline.charts.individuals import moving_range, mr_ucl_standardised
 from pipeline.charts.run_rules import RULES, apply_run_rules, select_rules
 from pipeline.charts.signals import (ControlCheckTimes, control_check_times, fleet_significance, impact_checks,
                                      signal_p_values, signal_run_lengths)
-from pipeline.db import ANALYSE_MEMORY_LIMIT, memory_limit, registered, sql_text, transaction
+from pipeline.db import ANALYSE_MEMORY_LIMIT, fetch_arrays, memory_limit, registered, sql_text, transaction
 from pipeline.settings import Settings
 
 KEY = ["instrument_id", "level", "baseline_period"]
@@ -373,8 +373,9 @@ def read_chart_input(con: duckdb.DuckDBPyConnection, with_rebaselines: bool, thr
     try:
         offset = "\n".join(line for line in sql_text("queries/charts_segment_offset").splitlines()
                            if not line.startswith("--")) if with_rebaselines else "0"
-        raw = con.execute(sql_text("queries/charts_input").format(segment_offset=offset),
-                          {"through": through}).fetchnumpy()
+        capacity = con.execute("SELECT count(*) FROM check_results").fetchall()[0][0]  # >= rows to chart
+        raw = fetch_arrays(con, sql_text("queries/charts_input").format(segment_offset=offset),
+                           {"through": through}, capacity=capacity)
         names = {t: [r[0] for r in con.execute(f"SELECT {c} FROM {t} ORDER BY {o}").fetchall()]
                  for t, c, o in (("_bf_units", "instrument_id", "unit_code"), ("_bf_technologies", "name", "code"),
                                  ("_bf_kinds", "name", "code"))}

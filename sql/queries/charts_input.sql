@@ -8,7 +8,8 @@
 -- $through: checks with a check_id at or below it are charted already, except those of the units
 -- in _bf_recharge (their points were removed to chart them again). The two are read as separate
 -- branches so that the check_id condition can skip the stored row groups below $through.
--- Codes come back as the narrowest integers (less to convert for millions of rows). The expected
+-- Codes come back as the narrowest integers (less to convert for millions of rows); no column is
+-- NULL (analyse streams the result into numpy arrays: pipeline.db.fetch_arrays). The expected
 -- and measured values of verification checks are read apart (charts_verification_values.sql).
 WITH picked AS (
     SELECT * FROM check_results WHERE check_id > $through
@@ -33,5 +34,6 @@ JOIN _bf_kinds k ON k.name = coalesce(r.standard_kind, 'unknown')
 WHERE r.check_type IN ('control', 'daily', 'verification')
   AND coalesce(r.outcome, 'pass') NOT IN ('aborted', 'invalid')
   AND r.relative_error IS NOT NULL AND isfinite(r.relative_error)
+  AND r.level IS NOT NULL AND r.measured_at IS NOT NULL  -- never NULL from ingest; a chart needs both
   AND r.check_id NOT IN (SELECT check_id FROM charted)
 ORDER BY u.unit_code, r.level, baseline_period, r.measured_at, r.check_id;
