@@ -221,3 +221,16 @@ def test_pooled_lookup_of_some_rows_equals_a_row_by_row_merge():
     # common practice: a lookup of a key in a table; keys without an entry are missing (NaN)
     np.testing.assert_array_equal(pooled_lookup(frame, pooled), merged)
     np.testing.assert_array_equal(pooled_lookup(frame, pooled, rows), merged[rows])
+
+
+def test_narrowest_codes_keep_values_and_sort_order():
+    from pipeline.charts.grouping import narrowest_codes
+
+    rng = np.random.default_rng(5)
+    for top, dtype in ((100, np.int8), (30_000, np.int16), (70_000, np.int64)):
+        codes = rng.integers(0, top, 10_000)
+        narrow = narrowest_codes(codes)
+        assert narrow.dtype == dtype and np.array_equal(narrow, codes)
+        assert np.array_equal(np.argsort(narrow, kind="stable"), np.argsort(codes, kind="stable"))
+    with_missing = np.array([3, -1, 2])  # a categorical's code for a missing value stays as it is
+    assert narrowest_codes(with_missing).dtype == with_missing.dtype

@@ -27,7 +27,7 @@ from pipeline.charts.baselines import POOLED_METHOD, own_estimates, pooled_sigma
 from pipeline.charts.cusum import tabular_cusum
 from pipeline.charts.design import design_cusum, design_ewma
 from pipeline.charts.ewma import ewma
-from pipeline.charts.grouping import Segments, group_starts, key_runs
+from pipeline.charts.grouping import Segments, group_starts, key_runs, narrowest_codes
 from pipeline.charts.linearity import fit_linearity
 from pipeline.charts.xbar_s import xbar_s_groups
 from pipeline.charts.individuals import moving_range, mr_ucl_standardised
@@ -411,10 +411,11 @@ def _group_keys(new: pd.DataFrame, starts: np.ndarray) -> pd.DataFrame:
 
 
 def _sort_codes(col: pd.Series) -> np.ndarray:
-    """Integer codes in the order pandas sorts the column: category order, else value order."""
+    """Integer codes in the order pandas sorts the column (category order, else value order), in
+    the narrowest integer type (sorted by radix)."""
     if isinstance(col.dtype, pd.CategoricalDtype):
-        return col.cat.codes.to_numpy()
-    return pd.factorize(col, sort=True)[0]
+        return narrowest_codes(col.cat.codes.to_numpy())
+    return narrowest_codes(pd.factorize(col, sort=True)[0])
 
 
 def _load_state(con, keys: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:

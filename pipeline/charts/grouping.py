@@ -137,3 +137,13 @@ def key_runs(frame: pd.DataFrame, columns: list[str]) -> tuple[np.ndarray, np.nd
     first_row = np.full(len(uniq), n, dtype=np.int64)
     np.minimum.at(first_row, code_run, run)
     return run, code_run, first_row
+
+
+def narrowest_codes(codes: np.ndarray) -> np.ndarray:
+    """Non-negative integer codes as int8 or int16 where they fit: numpy's stable sort (and so
+    lexsort) sorts integers of 16 bits or fewer by radix, and wider ones by merging."""
+    codes = np.asarray(codes)
+    if not len(codes) or codes.min() < 0:
+        return codes
+    top = codes.max()
+    return codes.astype(np.int8) if top < 2**7 else codes.astype(np.int16) if top < 2**15 else codes

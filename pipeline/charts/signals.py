@@ -9,6 +9,7 @@ import pandas as pd
 from scipy.stats import norm
 
 from pipeline.charts.fleet_alarms import benjamini_hochberg_arrays, cusum_signal_p_values, ewma_signal_p_values
+from pipeline.charts.grouping import narrowest_codes
 from pipeline.db import registered
 
 
@@ -27,8 +28,7 @@ def signal_run_lengths(series: list[np.ndarray], position: np.ndarray) -> np.nda
     """
     position = np.asarray(position, dtype=np.int64)
     # Small codes sort by radix, and a stable sort keeps each series' rows in time order.
-    keys = [c.astype(np.int16) if len(c) and 0 <= c.min() and c.max() < 2**15 else c
-            for c in map(np.asarray, series)]
+    keys = [narrowest_codes(c) for c in series]
     order = np.lexsort(keys[::-1])
     same = np.zeros(len(order), dtype=bool)
     same[1:] = np.logical_and.reduce([k[order][1:] == k[order][:-1] for k in keys])
