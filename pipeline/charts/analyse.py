@@ -361,8 +361,9 @@ def signal_frame(base: dict, rows: np.ndarray, chart: str, rule, direction, size
 
 
 def read_chart_input(con: duckdb.DuckDBPyConnection, with_rebaselines: bool, through: int,
-                     recharge: set[str]) -> pd.DataFrame:
-    """Checks to chart (sql/queries/charts_input.sql), names as pandas categoricals.
+                     recharge: set[str], *, capacity: int) -> pd.DataFrame:
+    """Checks to chart (sql/queries/charts_input.sql), names as pandas categoricals. capacity: the
+    rows of check_results, a bound on the rows read.
 
     The query returns integer codes into small name tables made here, because converting
     millions of repeated strings is the slow part of reading a whole fleet.
@@ -373,7 +374,6 @@ def read_chart_input(con: duckdb.DuckDBPyConnection, with_rebaselines: bool, thr
     try:
         offset = "\n".join(line for line in sql_text("queries/charts_segment_offset").splitlines()
                            if not line.startswith("--")) if with_rebaselines else "0"
-        capacity = con.execute("SELECT count(*) FROM check_results").fetchall()[0][0]  # >= rows to chart
         raw = fetch_arrays(con, sql_text("queries/charts_input").format(segment_offset=offset),
                            {"through": through}, capacity=capacity)
         names = {t: [r[0] for r in con.execute(f"SELECT {c} FROM {t} ORDER BY {o}").fetchall()]
@@ -547,17 +547,22 @@ def analyse_fleet(con: duckdb.DuckDBPyConnection, settings: Settings) -> Analysi
     Returns an AnalysisRun with counts, duration and the parameters used. For its duration DuckDB
     may use db.ANALYSE_MEMORY_LIMIT and glibc keeps freed memory for reuse (pipeline/batch_memory.py).
     """
-    with memory_limit(con, ANALYSE_MEMORY_LIMIT), freed_memory_kept(), collector_paused():
-        return _analyse(con, settings)
+    with (memory_limit(con, ANALYSE_MEMORY_LIMIT), freed_memory_kept(), collector_paused(),
+          ThreadPoolExecutor(max_workers=1) as worker):
+        return _analyse(con, settings, worker)
 
 
-def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
-    """analyse_fleet's run: read, compute, store (timed in those three parts)."""
+def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings, worker: ThreadPoolExecutor) -> AnalysisRun:
+    """analyse_fleet's run: read, compute, store (timed in those three parts). One worker thread
+    beside the main one: it designs the charts while the main thread reads; it loads the kernels,
+    reads and fits linearity while the charts are computed (_read_alongside); then it stores the
+    points while the signals are computed. DuckDB, LAPACK and numba's loader work mostly without
+    the GIL."""
     from pipeline.standards import sync_standards_settings
 
     t0 = time.perf_counter()
     started = datetime.now(UTC).replace(tzinfo=None)
-    params = chart_parameters(settings)
+    designing = worker.submit(chart_parameters, settings)  # run-length designs: 0.15 s of numerics
     sync_standards_settings(con, settings)
     mode = "incremental" if con.execute("SELECT count(*) FROM chart_points").fetchall()[0][0] else "full"
     with_rb = bool(con.execute("SELECT count(*) > 0 FROM chart_rebaselines").fetchall()[0][0])
@@ -572,7 +577,7 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
     # Units whose points a re-baseline removed since the last run are charted again from there.
     recharge = {r[0] for r in con.execute("SELECT DISTINCT instrument_id FROM chart_rebaselines WHERE recorded_at >= $t",
                                           {"t": last_run_at or datetime(1900, 1, 1)}).fetchall()}
-    new = read_chart_input(con, with_rb, through, recharge)
+    new = read_chart_input(con, with_rb, through, recharge, capacity=n_top)
     starts = _starts(new)
     state, own, tail = _load_state(con, _group_keys(new, starts))
     if len(state):
@@ -587,67 +592,65 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings) -> AnalysisRun:
                     con.execute(f"DELETE FROM {table} t USING _bf_late l WHERE t.instrument_id = l.instrument_id "
                                 "AND t.level = l.level AND t.baseline_period = l.baseline_period")
             recharge |= set(late["instrument_id"].astype(str))
-            new = read_chart_input(con, with_rb, through, recharge)
+            new = read_chart_input(con, with_rb, through, recharge, capacity=n_top)
             starts = _starts(new)
             state, own, tail = _load_state(con, _group_keys(new, starts))
     pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
     t_read = time.perf_counter() - t0
     reader = con.cursor()
-    # One worker thread beside the computation: it loads the kernels, reads and fits linearity while
-    # the charts are computed (_read_alongside), then stores the points while the signals are
-    # computed. DuckDB and numba's loader work mostly without the GIL.
+    alongside = worker.submit(_read_alongside, reader, new, settings)
     try:
-        with ThreadPoolExecutor(max_workers=1) as pool:
-            alongside = pool.submit(_read_alongside, reader, new, settings)
-            missing = np.isnan(pooled_lookup(new, pooled)) if len(pooled) else np.ones(len(new), dtype=bool)
-            if missing.any():
-                sub = new[missing] if not missing.all() else new
-                fresh = pooled_sigma(sub, starts if sub is new else _starts(sub)).assign(frozen_at=started,
-                                                                                         method=POOLED_METHOD)
-                con.execute("INSERT INTO chart_pooled_sigma SELECT technology, standard_kind, level, sigma, n_pairs, "
-                            "frozen_at, method FROM fresh")
-                pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
-            out = compute_charts(new, tail, state, own, pooled, params, starts=starts)
-            pts = out["points"]
-            run_id = int(con.execute("SELECT coalesce(max(run_id), 0) + 1 FROM chart_runs").fetchall()[0][0])
-            first_sig = int(con.execute("SELECT coalesce(max(signal_id), 0) + 1 FROM chart_signals").fetchall()[0][0])
-            first_b = int(con.execute("SELECT coalesce(max(baseline_id), 0) + 1 FROM chart_baselines").fetchall()[0][0])
-            data_end = None if new.empty else pd.Timestamp(new["measured_at"].max()).to_pydatetime()
-            st = out["state"]
-            lin, times = alongside.result()
-            with transaction(con):
-                # Arrow tables: registered without a copy.
-                storing = pool.submit(_append, con, "chart_points", _arrow(pts, nullable=("moving_range",)))
-                try:
-                    groups, sig, bl = _signals_groups_baselines(out, lin, times, params, settings, reader, run_id,
-                                                                first_b)
-                finally:  # the transaction ends (commit or rollback) only once the insert is done with it
-                    wait([storing])
-                t_compute = time.perf_counter() - t0 - t_read
-                storing.result()
-                with registered(con, "_bf_state_keys", st):
-                    con.execute("DELETE FROM chart_state t USING _bf_state_keys s WHERE t.instrument_id = s.instrument_id "
-                                "AND t.level = s.level AND t.baseline_period = s.baseline_period")
-                _append(con, "chart_state", st)
-                if len(bl):
-                    _append(con, "chart_baselines", bl)
-                if len(sig):
-                    sig = sig.drop(columns=["position", "baseline_period"]).assign(
-                        signal_id=np.arange(first_sig, first_sig + len(sig)), run_id=run_id, created_at=started)
-                    _append(con, "chart_signals", pa.Table.from_pandas(sig, preserve_index=False))
-                if len(groups):
-                    _append(con, "chart_groups", groups.assign(run_id=run_id))
-                if len(lin):  # a session charted again (late data) keeps its stored fit
-                    _append(con, "chart_linearity", lin.assign(run_id=run_id), or_ignore=True)
-                duration = time.perf_counter() - t0
-                con.execute("INSERT INTO chart_runs (run_id, started_at, duration_s, mode, n_new_checks, n_groups, "
-                            "n_signals, n_baselines, data_end, parameters, software_version, checks_through, "
-                            "checks_counted, ind_lcl, ind_ucl, mr_ucl) VALUES ($id, $at, $d, $mode, $n, $g, $s, $b, "
-                            "$end, $p, $v, $through, $counted, $ind_lcl, $ind_ucl, $mr_ucl)",
-                            {"id": run_id, "at": started, "d": duration, "mode": mode, "n": len(pts), "g": len(st),
-                             "s": len(sig), "b": len(bl), "end": data_end, "p": json.dumps(params, default=str),
-                             "v": SOFTWARE_VERSION, "through": top, "counted": n_top} | out["limits"])
-    finally:
+        missing = np.isnan(pooled_lookup(new, pooled)) if len(pooled) else np.ones(len(new), dtype=bool)
+        if missing.any():
+            sub = new[missing] if not missing.all() else new
+            fresh = pooled_sigma(sub, starts if sub is new else _starts(sub)).assign(frozen_at=started,
+                                                                                     method=POOLED_METHOD)
+            con.execute("INSERT INTO chart_pooled_sigma SELECT technology, standard_kind, level, sigma, n_pairs, "
+                        "frozen_at, method FROM fresh")
+            pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
+        params = designing.result()
+        out = compute_charts(new, tail, state, own, pooled, params, starts=starts)
+        pts = out["points"]
+        run_id = int(con.execute("SELECT coalesce(max(run_id), 0) + 1 FROM chart_runs").fetchall()[0][0])
+        first_sig = int(con.execute("SELECT coalesce(max(signal_id), 0) + 1 FROM chart_signals").fetchall()[0][0])
+        first_b = int(con.execute("SELECT coalesce(max(baseline_id), 0) + 1 FROM chart_baselines").fetchall()[0][0])
+        data_end = None if new.empty else pd.Timestamp(new["measured_at"].max()).to_pydatetime()
+        st = out["state"]
+        lin, times = alongside.result()
+        with transaction(con):
+            # Arrow tables: registered without a copy.
+            storing = worker.submit(_append, con, "chart_points", _arrow(pts, nullable=("moving_range",)))
+            try:
+                groups, sig, bl = _signals_groups_baselines(out, lin, times, params, settings, reader, run_id,
+                                                            first_b)
+            finally:  # the transaction ends (commit or rollback) only once the insert is done with it
+                wait([storing])
+            t_compute = time.perf_counter() - t0 - t_read
+            storing.result()
+            with registered(con, "_bf_state_keys", st):
+                con.execute("DELETE FROM chart_state t USING _bf_state_keys s WHERE t.instrument_id = s.instrument_id "
+                            "AND t.level = s.level AND t.baseline_period = s.baseline_period")
+            _append(con, "chart_state", st)
+            if len(bl):
+                _append(con, "chart_baselines", bl)
+            if len(sig):
+                sig = sig.drop(columns=["position", "baseline_period"]).assign(
+                    signal_id=np.arange(first_sig, first_sig + len(sig)), run_id=run_id, created_at=started)
+                _append(con, "chart_signals", pa.Table.from_pandas(sig, preserve_index=False))
+            if len(groups):
+                _append(con, "chart_groups", groups.assign(run_id=run_id))
+            if len(lin):  # a session charted again (late data) keeps its stored fit
+                _append(con, "chart_linearity", lin.assign(run_id=run_id), or_ignore=True)
+            duration = time.perf_counter() - t0
+            con.execute("INSERT INTO chart_runs (run_id, started_at, duration_s, mode, n_new_checks, n_groups, "
+                        "n_signals, n_baselines, data_end, parameters, software_version, checks_through, "
+                        "checks_counted, ind_lcl, ind_ucl, mr_ucl) VALUES ($id, $at, $d, $mode, $n, $g, $s, $b, "
+                        "$end, $p, $v, $through, $counted, $ind_lcl, $ind_ucl, $mr_ucl)",
+                        {"id": run_id, "at": started, "d": duration, "mode": mode, "n": len(pts), "g": len(st),
+                         "s": len(sig), "b": len(bl), "end": data_end, "p": json.dumps(params, default=str),
+                         "v": SOFTWARE_VERSION, "through": top, "counted": n_top} | out["limits"])
+    finally:  # the worker may still read with the cursor when the run fails
+        wait([alongside])
         reader.close()
     return AnalysisRun(run_id=run_id, mode=mode, n_new_checks=len(pts), n_groups=len(st), n_signals=len(sig),
                        n_baselines=len(bl), duration_s=duration, parameters=params, data_end=data_end,
