@@ -623,6 +623,11 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings, worker: ThreadP
             try:
                 groups, sig, bl = _signals_groups_baselines(out, lin, times, params, settings, reader, run_id,
                                                             first_b)
+                # The rows to store, made while the points are still being stored.
+                sig_rows = pa.Table.from_pandas(sig.drop(columns=["position", "baseline_period"]).assign(
+                    signal_id=np.arange(first_sig, first_sig + len(sig)), run_id=run_id, created_at=started),
+                    preserve_index=False)
+                groups, lin = groups.assign(run_id=run_id), lin.assign(run_id=run_id)
             finally:  # the transaction ends (commit or rollback) only once the insert is done with it
                 wait([storing])
             t_compute = time.perf_counter() - t0 - t_read
@@ -634,13 +639,11 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings, worker: ThreadP
             if len(bl):
                 _append(con, "chart_baselines", bl)
             if len(sig):
-                sig = sig.drop(columns=["position", "baseline_period"]).assign(
-                    signal_id=np.arange(first_sig, first_sig + len(sig)), run_id=run_id, created_at=started)
-                _append(con, "chart_signals", pa.Table.from_pandas(sig, preserve_index=False))
+                _append(con, "chart_signals", sig_rows)
             if len(groups):
-                _append(con, "chart_groups", groups.assign(run_id=run_id))
+                _append(con, "chart_groups", groups)
             if len(lin):  # a session charted again (late data) keeps its stored fit
-                _append(con, "chart_linearity", lin.assign(run_id=run_id), or_ignore=True)
+                _append(con, "chart_linearity", lin, or_ignore=True)
             duration = time.perf_counter() - t0
             con.execute("INSERT INTO chart_runs (run_id, started_at, duration_s, mode, n_new_checks, n_groups, "
                         "n_signals, n_baselines, data_end, parameters, software_version, checks_through, "
