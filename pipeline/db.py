@@ -159,18 +159,21 @@ def fetch_arrays(con: duckdb.DuckDBPyConnection, query: str, params: dict | None
     and touched 0.6 GB less memory (350 thousand page faults against 505 thousand).
     """
     reader = con.sql(query, params=params).to_arrow_reader(batch_rows)
-    out = {f.name: np.empty(capacity, dtype=f.type.to_pandas_dtype()) for f in reader.schema}
-    n = 0
-    for batch in reader:
-        m = batch.num_rows
-        if n + m > capacity:
-            capacity = max(2 * capacity, n + m)
-            out = {name: np.resize(a[:n], capacity) for name, a in out.items()}
-        for name, column in zip(batch.schema.names, batch.columns):
-            if column.null_count:
-                raise ValueError(f"fetch_arrays: column {name} has NULL values")
-            out[name][n:n + m] = column.to_numpy(zero_copy_only=False)
-        n += m
+    try:  # closed in any case: an unfinished result would keep the connection busy
+        out = {f.name: np.empty(capacity, dtype=f.type.to_pandas_dtype()) for f in reader.schema}
+        n = 0
+        for batch in reader:
+            m = batch.num_rows
+            if n + m > capacity:
+                capacity = max(2 * capacity, n + m)
+                out = {name: np.resize(a[:n], capacity) for name, a in out.items()}
+            for name, column in zip(batch.schema.names, batch.columns):
+                if column.null_count:
+                    raise ValueError(f"fetch_arrays: column {name} has NULL values")
+                out[name][n:n + m] = column.to_numpy(zero_copy_only=False)
+            n += m
+    finally:
+        reader.close()
     return {name: a[:n].copy() if n < len(a) // 2 else a[:n] for name, a in out.items()}
 
 

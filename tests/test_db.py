@@ -59,4 +59,6 @@ def test_fetch_arrays_equals_fetchnumpy_whatever_the_capacity():
     assert {name: len(a) for name, a in empty.items()} == dict.fromkeys(want, 0)
     assert empty["at"].dtype == np.dtype("datetime64[us]")
     with pytest.raises(ValueError, match="column x has NULL"):
-        fetch_arrays(con, "SELECT id, CASE WHEN id = 3 THEN NULL ELSE x END AS x FROM t", capacity=5000)
+        fetch_arrays(con, "SELECT id, CASE WHEN id = 3 THEN NULL ELSE x END AS x FROM t", capacity=5000,
+                     batch_rows=64)
+    assert con.execute("SELECT count(*) FROM t").fetchall() == [(5000,)]  # the connection is free again
