@@ -103,3 +103,18 @@ def test_signal_p_values_increase_with_run_length():
     p = cusum_signal_p_values([1, 5, 50, 500, 5000], 0.5, 5.0)
     # common practice: an earlier signal is stronger evidence
     assert np.all(np.diff(p) > 0) and p[0] < 1e-6 and p[-1] > 0.99
+
+
+def test_benjamini_hochberg_arrays_ignore_the_order_of_tied_p_values():
+    # p-values of chart signals take few distinct values (one per run length): many ties. The
+    # rejections and adjusted values must not depend on how the ties are ordered.
+    from pipeline.charts.fleet_alarms import benjamini_hochberg_arrays
+
+    rng = np.random.default_rng(8)
+    p = np.round(rng.random(50_000) ** 3, 3)
+    rejected, adjusted, n_rej, threshold, _ = benjamini_hochberg_arrays(p, 0.05)
+    assert 0 < n_rej < len(p) and rejected.sum() == n_rej
+    assert (rejected == (p <= threshold)).all()
+    perm = rng.permutation(len(p))
+    rejected2, adjusted2, n_rej2, _, _ = benjamini_hochberg_arrays(p[perm], 0.05)
+    assert n_rej2 == n_rej and (rejected2 == rejected[perm]).all() and np.array_equal(adjusted2, adjusted[perm])
