@@ -627,7 +627,7 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings, worker: ThreadP
                 sig_rows = pa.Table.from_pandas(sig.drop(columns=["position", "baseline_period"]).assign(
                     signal_id=np.arange(first_sig, first_sig + len(sig)), run_id=run_id, created_at=started),
                     preserve_index=False)
-                groups, lin = groups.assign(run_id=run_id), lin.assign(run_id=run_id)
+                groups, lin = _arrow(groups.assign(run_id=run_id)), _arrow(lin.assign(run_id=run_id))
             finally:  # the transaction ends (commit or rollback) only once the insert is done with it
                 wait([storing])
             t_compute = time.perf_counter() - t0 - t_read
