@@ -33,7 +33,7 @@ from pipeline.charts.xbar_s import xbar_s_groups
 from pipeline.charts.individuals import moving_range, mr_ucl_standardised
 from pipeline.charts.run_rules import RULES, apply_run_rules, select_rules
 from pipeline.charts.signals import (ControlCheckTimes, control_check_times, fleet_significance, impact_checks,
-                                     signal_p_values, signal_run_lengths)
+                                     signal_p_values, signal_run_lengths, unit_codes)
 from pipeline.db import ANALYSE_MEMORY_LIMIT, fetch_arrays, memory_limit, registered, sql_text, transaction
 from pipeline.settings import Settings
 
@@ -479,9 +479,8 @@ def _read_alongside(reader: duckdb.DuckDBPyConnection, new: pd.DataFrame,
     lin = fit_linearity(read_verification_checks(reader, new), settings.charts.verification_window_minutes)
     if new.empty:
         return lin, None
-    unit = new["instrument_id"]
-    present = np.flatnonzero(np.bincount(unit.cat.codes.to_numpy(), minlength=len(unit.cat.categories)))
-    return lin, control_check_times(reader, unit.cat.categories[present], new["measured_at"].min())
+    _, units, present = unit_codes(new["instrument_id"])
+    return lin, control_check_times(reader, units[present], new["measured_at"].min())
 
 
 def _signals_groups_baselines(out: dict, lin: pd.DataFrame, times: ControlCheckTimes | None, params: dict,

@@ -79,6 +79,16 @@ class ControlCheckTimes:
     keys: np.ndarray
 
 
+def unit_codes(unit: pd.Series) -> tuple[np.ndarray, pd.Index, np.ndarray]:
+    """A unit column as (integer codes, categories, codes that occur): a categorical's own codes,
+    so that a fleet's units are found without making millions of strings."""
+    if isinstance(unit.dtype, pd.CategoricalDtype):
+        codes, categories = unit.cat.codes.to_numpy(), unit.cat.categories
+    else:
+        codes, categories = pd.factorize(unit.astype(str))
+    return codes, categories, np.flatnonzero(np.bincount(codes, minlength=len(categories)))
+
+
 def control_check_times(con, units, lo) -> ControlCheckTimes:
     """One read of the control-check times of `units` (names) at or after `lo`, keyed and sorted by DuckDB."""
     names = pd.Index(np.asarray(units, dtype=object)).astype(str)
@@ -103,12 +113,7 @@ def impact_checks(con, sig: pd.DataFrame, times: ControlCheckTimes | None = None
     """
     if sig.empty:
         return np.empty(0, dtype=np.int64)
-    unit = sig["instrument_id"]
-    if isinstance(unit.dtype, pd.CategoricalDtype):  # the units present, by their codes: no strings made
-        cat_codes, categories = unit.cat.codes.to_numpy(), unit.cat.categories
-    else:
-        cat_codes, categories = pd.factorize(unit.astype(str))
-    present = np.flatnonzero(np.bincount(cat_codes, minlength=len(categories)))
+    cat_codes, categories, present = unit_codes(sig["instrument_id"])
     names = categories[present].astype(str)
     onset = sig["onset_at"].fillna(sig["measured_at"]).to_numpy(dtype="datetime64[us]")
     at = sig["measured_at"].to_numpy(dtype="datetime64[us]")
