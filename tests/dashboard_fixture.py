@@ -14,6 +14,7 @@ import duckdb
 import numpy as np
 import pandas as pd
 
+from pipeline.charts.series import KEY as SERIES_KEY, series_ids
 from pipeline.check_results import refresh_check_results
 from pipeline.dashboard_summary import write_dashboard_summary
 from pipeline.db import migrate, publish_snapshot
@@ -22,9 +23,6 @@ CONTRACT_TABLES = {
     "chart_baselines": """baseline_id BIGINT, instrument_id TEXT, level DOUBLE, baseline_period INTEGER,
         version INTEGER, frozen_at TIMESTAMP, reason TEXT, sigma_source TEXT, center DOUBLE, sigma DOUBLE,
         n_checks BIGINT, parameters TEXT, software_version TEXT, run_id BIGINT""",
-    "chart_points": """check_id BIGINT, instrument_id TEXT, level DOUBLE, baseline_period INTEGER,
-        measured_at TIMESTAMP, z DOUBLE, moving_range DOUBLE, cusum_upper DOUBLE, cusum_lower DOUBLE,
-        ewma DOUBLE, ewma_ucl DOUBLE, center DOUBLE, sigma DOUBLE""",
     "chart_runs": """run_id BIGINT, started_at TIMESTAMP, duration_s DOUBLE, mode TEXT, n_new_checks BIGINT,
         n_groups BIGINT, n_signals BIGINT, n_baselines BIGINT, parameters TEXT, software_version TEXT,
         ind_lcl DOUBLE, ind_ucl DOUBLE, mr_ucl DOUBLE""",
@@ -192,7 +190,9 @@ def _fill_charts(con, checks: pd.DataFrame, units: pd.DataFrame) -> None:
                         "measured_at": last - pd.Timedelta(days=i + 1), "chart": "ewma", "rule": "ewma_limit",
                         "direction": "up", "size": 1.2, "onset_at": last - pd.Timedelta(days=i + 5),
                         "impact_checks": 4, "fleet_significant": False, "created_at": last})
-    _insert(con, "chart_points", pd.concat(frames))
+    points = pd.concat(frames)
+    keys = points[SERIES_KEY].drop_duplicates()
+    _insert(con, "chart_point_values", points.merge(keys.assign(series_id=series_ids(con, keys)), on=SERIES_KEY))
     _insert(con, "chart_runs", pd.DataFrame([{
         "run_id": 1, "started_at": checks["measured_at"].max(), "duration_s": 1.0, "mode": "full",
         "n_new_checks": sum(map(len, frames)), "n_groups": len(frames), "n_signals": 0, "n_baselines": len(baselines),

@@ -32,13 +32,16 @@ from pipeline.charts.linearity import fit_linearity
 from pipeline.charts.xbar_s import xbar_s_groups
 from pipeline.charts.individuals import moving_range, mr_ucl_standardised
 from pipeline.charts.run_rules import RULES, apply_run_rules, select_rules
+from pipeline.charts.series import KEY, series_ids
 from pipeline.charts.signals import (ControlCheckTimes, control_check_times, fleet_significance, impact_checks,
                                      signal_p_values, signal_run_lengths, unit_codes)
 from pipeline.db import ANALYSE_MEMORY_LIMIT, fetch_arrays, memory_limit, registered, sql_text, transaction
 from pipeline.settings import Settings
 
-KEY = ["instrument_id", "level", "baseline_period"]
 CHECK_TYPES = ["control", "daily", "verification"]  # the codes of charts_input.sql
+# The stored columns of a point besides its series (table chart_point_values).
+POINT_VALUES = ["check_id", "measured_at", "position", "relative_error", "z", "moving_range", "cusum_upper",
+                "cusum_lower", "ewma", "ewma_ucl", "center", "sigma", "own_sigma"]
 TAIL = 20  # stored points prepended per group: >= own baseline size and the longest run rule (15)
 
 
@@ -242,7 +245,8 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
         "measured_at": of_new(frame["measured_at"].to_numpy()), "position": of_new(position),
         "relative_error": of_new(x), "z": zn, "moving_range": mr_new,
         "cusum_upper": cus.upper, "cusum_lower": cus.lower, "ewma": ew.ewma, "ewma_ucl": ew.ucl,
-        "center": of_new(center_out), "sigma": of_new(sigma_out), "own_sigma": of_new(use_own)},
+        "center": of_new(center_out), "sigma": of_new(sigma_out), "own_sigma": of_new(use_own),
+        "group": gn},  # the point's row in the returned state (one row per group)
         copy=False)  # no block copy of 9 M rows
     # Signals on crossings: beyond the limit now, not beyond it at the group's previous check
     # (for a group's first new row: its carried state against the previous limit).
@@ -563,7 +567,7 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings, worker: ThreadP
     started = datetime.now(UTC).replace(tzinfo=None)
     designing = worker.submit(chart_parameters, settings)  # run-length designs: 0.15 s of numerics
     sync_standards_settings(con, settings)
-    mode = "incremental" if con.execute("SELECT count(*) FROM chart_points").fetchall()[0][0] else "full"
+    mode = "incremental" if con.execute("SELECT count(*) FROM chart_point_values").fetchall()[0][0] else "full"
     with_rb = bool(con.execute("SELECT count(*) > 0 FROM chart_rebaselines").fetchall()[0][0])
     through, counted, last_run_at = con.execute(
         "SELECT checks_through, checks_counted, started_at FROM chart_runs ORDER BY run_id DESC LIMIT 1").fetchone() \
@@ -587,9 +591,10 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings, worker: ThreadP
                 for table in ("chart_signals", "chart_groups"):  # of the points removed below
                     con.execute(f"DELETE FROM {table} WHERE check_id IN (SELECT p.check_id FROM chart_points p "
                                 "JOIN _bf_late USING (instrument_id, level, baseline_period))")
-                for table in ("chart_points", "chart_state"):
-                    con.execute(f"DELETE FROM {table} t USING _bf_late l WHERE t.instrument_id = l.instrument_id "
-                                "AND t.level = l.level AND t.baseline_period = l.baseline_period")
+                con.execute("DELETE FROM chart_point_values WHERE series_id IN (SELECT series_id FROM chart_series "
+                            "JOIN _bf_late USING (instrument_id, level, baseline_period))")
+                con.execute("DELETE FROM chart_state t USING _bf_late l WHERE t.instrument_id = l.instrument_id "
+                            "AND t.level = l.level AND t.baseline_period = l.baseline_period")
             recharge |= set(late["instrument_id"].astype(str))
             new = read_chart_input(con, with_rb, through, recharge, capacity=n_top)
             starts = _starts(new)
@@ -617,8 +622,10 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings, worker: ThreadP
         st = out["state"]
         lin, times = alongside.result()
         with transaction(con):
-            # Arrow tables: registered without a copy.
-            storing = worker.submit(_append, con, "chart_points", _arrow(pts, nullable=("moving_range",)))
+            # Arrow tables: registered without a copy. Points refer to their series by number.
+            series = series_ids(con, st[KEY])
+            values = pts[POINT_VALUES].assign(series_id=series[pts["group"].to_numpy()])
+            storing = worker.submit(_append, con, "chart_point_values", _arrow(values, nullable=("moving_range",)))
             try:
                 groups, sig, bl = _signals_groups_baselines(out, lin, times, params, settings, reader, run_id,
                                                             first_b)

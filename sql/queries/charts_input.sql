@@ -17,7 +17,7 @@ WITH picked AS (
     SELECT * FROM check_results
     WHERE check_id <= $through AND instrument_id IN (SELECT instrument_id FROM _bf_recharge)
 ), charted AS (
-    SELECT check_id FROM chart_points WHERE check_id > $through
+    SELECT check_id FROM chart_point_values WHERE check_id > $through
     UNION ALL
     SELECT check_id FROM chart_points
     WHERE check_id <= $through AND instrument_id IN (SELECT instrument_id FROM _bf_recharge)
