@@ -64,7 +64,7 @@ def fit_linearity(frame: pd.DataFrame, window_minutes: float = 60.0, confidence:
     se_a = np.sqrt(s2 * (1 / n + (sx / n) ** 2 / sxx))
     tq = t_dist.ppf(0.5 + confidence / 2, np.maximum(n - 2, 1))
     when = frame["measured_at"].to_numpy()[order]
-    out = pd.DataFrame({"instrument_id": frame["instrument_id"].to_numpy()[order][first[fit]],
+    out = pd.DataFrame({"instrument_id": frame["instrument_id"].take(order[first[fit]]).to_numpy(),
                         "started_at": when[first[fit]], "ended_at": when[last[fit]],
                         "n_checks": n.astype(np.int64), "n_levels": n_levels[fit]})
     out["slope"], out["slope_low"], out["slope_high"] = slope, slope - tq * se_b, slope + tq * se_b

@@ -90,7 +90,8 @@ def unit_codes(unit: pd.Series) -> tuple[np.ndarray, pd.Index, np.ndarray]:
 
 
 def control_check_times(con, units, lo) -> ControlCheckTimes:
-    """One read of the control-check times of `units` (names) at or after `lo`, keyed and sorted by DuckDB."""
+    """One read of the control-check times of `units` (names) at or after `lo`, keyed by DuckDB and
+    sorted by numpy (a fleet's 5.2 million keys: 0.26-0.30 s with ORDER BY, 0.14 s with np.sort)."""
     names = pd.Index(np.asarray(units, dtype=object)).astype(str)
     lo = np.datetime64(pd.Timestamp(lo).to_datetime64(), "us")
     frame = pd.DataFrame({"instrument_id": np.asarray(names, dtype=object),
@@ -98,10 +99,10 @@ def control_check_times(con, units, lo) -> ControlCheckTimes:
     with registered(con, "_bf_signal_units", frame):
         keys = con.execute("SELECT u.code * $shift + (epoch_us(c.measured_at) - $lo_us) AS key FROM checks c "
                            "JOIN _bf_signal_units u USING (instrument_id) "
-                           "WHERE c.check_type = 'control' AND c.measured_at >= $lo ORDER BY key",
+                           "WHERE c.check_type = 'control' AND c.measured_at >= $lo",
                            {"lo": pd.Timestamp(lo).to_pydatetime(), "shift": int(SHIFT),
                             "lo_us": int(lo.astype(np.int64))}).fetchnumpy()["key"]
-    return ControlCheckTimes(names, lo, np.asarray(keys, dtype=np.int64))
+    return ControlCheckTimes(names, lo, np.sort(np.asarray(keys, dtype=np.int64)))
 
 
 def impact_checks(con, sig: pd.DataFrame, times: ControlCheckTimes | None = None) -> np.ndarray:

@@ -5,4 +5,5 @@
 -- fewer columns in the sorted read of a whole fleet made it 0.3-0.6 s faster.
 SELECT r.check_id, r.expected, r.measured
 FROM check_results r SEMI JOIN _bf_verification v USING (check_id)
+WHERE r.check_type = 'verification'  -- all of _bf_verification: probes 0.7 of 10 million rows
 ORDER BY r.check_id;
