@@ -366,7 +366,7 @@ def main() -> None:
     work = OUT / "charts-work.duckdb"
     shutil.copyfile(src, work)
     con = open_database(work)   # as `breathfleet run` opens it (settings of a writer, migrations)
-    for t in ("chart_point_values", "chart_series", "chart_signals", "chart_baselines", "chart_state", "chart_runs", "chart_pooled_sigma",
+    for t in ("chart_point_values", "chart_series", "chart_signal_values", "chart_signal_kinds", "chart_baselines", "chart_state", "chart_runs", "chart_pooled_sigma",
               "chart_groups", "chart_linearity"):
         con.execute(f"DELETE FROM {t}")  # noqa: S608
     end = con.execute("SELECT max(measured_at) FROM checks").fetchall()[0][0]

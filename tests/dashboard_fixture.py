@@ -14,7 +14,7 @@ import duckdb
 import numpy as np
 import pandas as pd
 
-from pipeline.charts.series import KEY as SERIES_KEY, series_ids
+from pipeline.charts.dimensions import KEY as SERIES_KEY, series_ids, signal_kinds
 from pipeline.check_results import refresh_check_results
 from pipeline.dashboard_summary import write_dashboard_summary
 from pipeline.db import migrate, publish_snapshot
@@ -26,9 +26,6 @@ CONTRACT_TABLES = {
     "chart_runs": """run_id BIGINT, started_at TIMESTAMP, duration_s DOUBLE, mode TEXT, n_new_checks BIGINT,
         n_groups BIGINT, n_signals BIGINT, n_baselines BIGINT, parameters TEXT, software_version TEXT,
         ind_lcl DOUBLE, ind_ucl DOUBLE, mr_ucl DOUBLE""",
-    "chart_signals": """signal_id BIGINT, instrument_id TEXT, level DOUBLE, check_id BIGINT,
-        measured_at TIMESTAMP, chart TEXT, rule TEXT, direction TEXT, size DOUBLE, onset_at TIMESTAMP,
-        impact_checks BIGINT, fleet_significant BOOLEAN, created_at TIMESTAMP""",
     "model_fits": """fit_id BIGINT, fitted_at TIMESTAMP, window_start TIMESTAMP, window_end TIMESTAMP,
         n_checks BIGINT, n_units BIGINT, n_lots BIGINT, converged BOOLEAN, boundary BOOLEAN, warnings TEXT,
         parameters TEXT, software_version TEXT, duration_s DOUBLE""",
@@ -198,7 +195,8 @@ def _fill_charts(con, checks: pd.DataFrame, units: pd.DataFrame) -> None:
         "n_new_checks": sum(map(len, frames)), "n_groups": len(frames), "n_signals": 0, "n_baselines": len(baselines),
         "parameters": "{}", "software_version": "0.1.0", "ind_lcl": -3.0, "ind_ucl": 3.0, "mr_ucl": 3.686}]))
     _insert(con, "chart_baselines", pd.DataFrame(baselines))
-    _insert(con, "chart_signals", pd.DataFrame(signals))
+    signals = pd.DataFrame(signals)
+    _insert(con, "chart_signal_values", signals.assign(kind=signal_kinds(con, signals)))
 
 
 def _fill_model(con, checks: pd.DataFrame, units: pd.DataFrame, lots: pd.DataFrame) -> None:

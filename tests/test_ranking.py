@@ -68,8 +68,9 @@ def test_lot_verdict_explains_and_lowers_priority(tmp_path):
     path = fleet_copy(tmp_path)
     con = duckdb.connect(str(path))
     # TX1000's upward signals raised on checks of lot WB-B1 (fixture verdict 'off', +2.6 %)
-    con.execute("UPDATE chart_signals SET check_id = (SELECT max(check_id) FROM checks WHERE instrument_id = "
-                "'TX1000' AND lot_id = 'WB-B1'), direction = 'up' WHERE instrument_id = 'TX1000'")
+    con.execute("UPDATE chart_signal_values SET check_id = (SELECT max(check_id) FROM checks WHERE instrument_id = "
+                "'TX1000' AND lot_id = 'WB-B1') WHERE instrument_id = 'TX1000'")
+    assert con.execute("SELECT DISTINCT direction FROM chart_signals WHERE instrument_id = 'TX1000'").fetchall() == [("up",)]
     entry = next(e for e in build_service_queue(con, Settings()).entries if e.instrument_id == "TX1000")
     unexplained = build_service_queue(con, dataclasses.replace(
         Settings(), queue=QueueSettings(lot_explained_factor=1.0)))

@@ -32,7 +32,7 @@ from pipeline.charts.linearity import fit_linearity
 from pipeline.charts.xbar_s import xbar_s_groups
 from pipeline.charts.individuals import moving_range, mr_ucl_standardised
 from pipeline.charts.run_rules import RULES, apply_run_rules, select_rules
-from pipeline.charts.series import KEY, series_ids
+from pipeline.charts.dimensions import KEY, SIGNAL_KIND, series_ids, signal_kinds
 from pipeline.charts.signals import (ControlCheckTimes, control_check_times, fleet_significance, impact_checks,
                                      signal_p_values, signal_run_lengths, unit_codes)
 from pipeline.db import ANALYSE_MEMORY_LIMIT, fetch_arrays, memory_limit, registered, sql_text, transaction
@@ -588,7 +588,7 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings, worker: ThreadP
         late = late.loc[late["measured_at"] < late["last_measured_at"], KEY].drop_duplicates()
         if len(late):
             with registered(con, "_bf_late", late), transaction(con):
-                for table in ("chart_signals", "chart_groups"):  # of the points removed below
+                for table in ("chart_signal_values", "chart_groups"):  # of the points removed below
                     con.execute(f"DELETE FROM {table} WHERE check_id IN (SELECT p.check_id FROM chart_points p "
                                 "JOIN _bf_late USING (instrument_id, level, baseline_period))")
                 con.execute("DELETE FROM chart_point_values WHERE series_id IN (SELECT series_id FROM chart_series "
@@ -616,7 +616,7 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings, worker: ThreadP
         out = compute_charts(new, tail, state, own, pooled, params, starts=starts)
         pts = out["points"]
         run_id = int(con.execute("SELECT coalesce(max(run_id), 0) + 1 FROM chart_runs").fetchall()[0][0])
-        first_sig = int(con.execute("SELECT coalesce(max(signal_id), 0) + 1 FROM chart_signals").fetchall()[0][0])
+        first_sig = int(con.execute("SELECT coalesce(max(signal_id), 0) + 1 FROM chart_signal_values").fetchall()[0][0])
         first_b = int(con.execute("SELECT coalesce(max(baseline_id), 0) + 1 FROM chart_baselines").fetchall()[0][0])
         data_end = None if new.empty else pd.Timestamp(new["measured_at"].max()).to_pydatetime()
         st = out["state"]
@@ -630,7 +630,7 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings, worker: ThreadP
                 groups, sig, bl = _signals_groups_baselines(out, lin, times, params, settings, reader, run_id,
                                                             first_b)
                 # The rows to store, made while the points are still being stored.
-                sig_rows = pa.Table.from_pandas(sig.drop(columns=["position", "baseline_period"]).assign(
+                sig_rows = pa.Table.from_pandas(sig.drop(columns=["position", "baseline_period", *SIGNAL_KIND]).assign(
                     signal_id=np.arange(first_sig, first_sig + len(sig)), run_id=run_id, created_at=started),
                     preserve_index=False)
                 groups, lin = _arrow(groups.assign(run_id=run_id)), _arrow(lin.assign(run_id=run_id))
@@ -645,7 +645,7 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings, worker: ThreadP
             if len(bl):
                 _append(con, "chart_baselines", bl)
             if len(sig):
-                _append(con, "chart_signals", sig_rows)
+                _append(con, "chart_signal_values", sig_rows.append_column("kind", pa.array(signal_kinds(con, sig))))
             if len(groups):
                 _append(con, "chart_groups", groups)
             if len(lin):  # a session charted again (late data) keeps its stored fit

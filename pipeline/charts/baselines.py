@@ -95,7 +95,7 @@ def record_rebaseline(con: duckdb.DuckDBPyConnection, instrument_id: str, rebase
                  "now": datetime.now(UTC).replace(tzinfo=None), "by": recorded_by})
     con.execute("DELETE FROM chart_point_values WHERE measured_at >= $at AND series_id IN "
                 "(SELECT series_id FROM chart_series WHERE instrument_id = $i)", {"i": instrument_id, "at": rebaseline_at})
-    for table in ("chart_signals", "chart_groups"):
+    for table in ("chart_signal_values", "chart_groups"):
         con.execute(f"DELETE FROM {table} WHERE instrument_id = $i AND measured_at >= $at",  # noqa: S608
                     {"i": instrument_id, "at": rebaseline_at})
     con.execute("DELETE FROM chart_state WHERE instrument_id = $i AND last_measured_at >= $at",

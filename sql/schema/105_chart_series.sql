@@ -3,7 +3,7 @@
 -- three key columns; storing a fleet's 9.3 million points spent 0.6-0.7 CPU-s on the unit's name
 -- alone. Points now carry a small series_id, and the view chart_points (sql/views/chart_points.sql)
 -- joins the key back, with the same columns as before, for every reader. Writers: analyse
--- (pipeline/charts/series.py numbers new series) and the deletes of late data and re-baselines.
+-- (pipeline/charts/dimensions.py numbers new series) and the deletes of late data and re-baselines.
 CREATE TABLE chart_series (
     series_id        INTEGER NOT NULL,
     instrument_id    TEXT NOT NULL,

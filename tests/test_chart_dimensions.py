@@ -1,11 +1,12 @@
-"""Chart series: numbered once, reused by later runs; points of older databases are carried over."""
+"""Chart series and signal kinds: numbered once, reused by later runs; points and signals of older
+databases are carried over."""
 
 import re
 
 import numpy as np
 import pandas as pd
 
-from pipeline.charts.series import series_ids
+from pipeline.charts.dimensions import series_ids, signal_kinds
 from pipeline.db import SQL_DIR, migrate
 
 
@@ -24,7 +25,17 @@ def test_new_series_are_numbered_in_row_order_and_known_ones_reused(fresh_db):
     assert series_ids(fresh_db, _keys([])).size == 0
 
 
-def test_points_of_a_database_from_before_chart_series_read_back_unchanged(tmp_path):
+def test_signal_kinds_are_numbered_once_per_kind(fresh_db):
+    sig = pd.DataFrame({"chart": pd.Categorical(["ewma", "cusum", "ewma", "ewma"], categories=["cusum", "ewma", "s"]),
+                        "rule": ["limit", "h", "limit", "limit"], "direction": ["up", "down", "down", "up"]})
+    kinds = signal_kinds(fresh_db, sig)
+    assert kinds.tolist() == [3, 1, 2, 3]  # numbered in (chart, rule, direction) order of the kinds present
+    assert signal_kinds(fresh_db, sig.iloc[[2, 1]]).tolist() == [2, 1]
+    assert fresh_db.execute("SELECT count(*) FROM chart_signal_kinds").fetchone()[0] == 3
+    assert signal_kinds(fresh_db, sig.iloc[:0]).size == 0
+
+
+def test_points_and_signals_of_a_database_from_before_the_split_read_back_unchanged(tmp_path):
     import duckdb
 
     con = duckdb.connect(str(tmp_path / "old.duckdb"))
@@ -44,7 +55,20 @@ def test_points_of_a_database_from_before_chart_series_read_back_unchanged(tmp_p
     con.register("old", old)
     con.execute("INSERT INTO chart_points BY NAME SELECT * FROM old")
     con.unregister("old")
-    assert "105_chart_series.sql" in migrate(con)
+    signals = pd.DataFrame({
+        "signal_id": [1, 2], "instrument_id": ["U9", "U1"], "level": [0.08, 0.04], "check_id": [12, 13],
+        "measured_at": pd.to_datetime(["2026-01-03", "2026-01-02"]), "chart": ["cusum", "individuals"],
+        "rule": ["h", "WE1"], "direction": ["down", "up"], "size": [4.2, 3.1],
+        "onset_at": pd.to_datetime(["2026-01-02", None]), "impact_checks": [2, 1], "p_value": [0.01, np.nan],
+        "fleet_significant": pd.array([True, None], dtype="boolean"), "run_id": [1, 1],
+        "created_at": pd.to_datetime(["2026-01-04", "2026-01-04"])})
+    con.register("old", signals)
+    con.execute("INSERT INTO chart_signals BY NAME SELECT * FROM old")
+    con.unregister("old")
+    applied = migrate(con)
+    assert {"105_chart_series.sql", "106_chart_signal_kinds.sql"} <= set(applied)
+    pd.testing.assert_frame_equal(con.execute("SELECT * FROM chart_signals ORDER BY signal_id").df()[signals.columns],
+                                  signals, check_dtype=False)
     back = con.execute("SELECT * FROM chart_points ORDER BY check_id").df()
     pd.testing.assert_frame_equal(back[old.columns], old, check_dtype=False)
     assert con.execute("SELECT series_id, instrument_id FROM chart_series ORDER BY 1").fetchall() == [(1, "U1"), (2, "U9")]
