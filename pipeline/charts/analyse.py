@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import json
 import time
+from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor, wait
 from dataclasses import asdict, dataclass
 from datetime import UTC, datetime
@@ -97,7 +98,8 @@ def pooled_lookup(frame: pd.DataFrame, pooled: pd.DataFrame, rows: np.ndarray | 
 
 
 def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, own: pd.DataFrame,
-                   pooled: pd.DataFrame, params: dict, *, starts: np.ndarray | None = None) -> dict:
+                   pooled: pd.DataFrame, params: dict, *, starts: np.ndarray | None = None,
+                   on_points: Callable[[pd.DataFrame], None] | None = None) -> dict:
     """Pure chart computation for new checks of many groups (no database access).
 
     new: new checks (KEY, check_id, measured_at, check_type, relative_error, technology, standard_kind),
@@ -110,6 +112,8 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     Every statistic works on the arrays of all groups back to back (grouping.Segments computed once);
     in a full run (no tail) the new rows are the frame, so nothing is copied to select them.
     starts: _starts(new), when the caller has it (used when there is no tail).
+    on_points: called with the points frame as soon as it is complete, before the run rules and
+    signals are worked out (analyse starts storing it then); its arrays are not changed after.
     """
     n_min = int(params["own_baseline_min_checks"])
     k, h = params["cusum"]["k"], params["cusum"]["h"]
@@ -212,9 +216,6 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     if has_old and "z" in frame:
         z = np.where(old, frame["z"].to_numpy(dtype=float, na_value=np.nan), z)
     mr = moving_range(z, seg=seg)
-    # Run rules on the standardised individuals (tail included for context).
-    events = apply_run_rules(z, starts, params["run_rules"]["set"], tuple(params["run_rules"]["rules"]),
-                             seg=seg).events
     # CUSUM and EWMA over new rows only, from the carried state.
     zn = of_new(z)
     seg_n = Segments.from_starts(group_starts(gid[nm])) if has_old else seg
@@ -232,10 +233,6 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
     cl0 = np.where(has_state, init("cusum_lower", 0.0), headstart)
     cus = tabular_cusum(zn, sn, k=k, h=h, init_upper=cu0, init_lower=cl0, seg=seg_n)
     gn = seg_n.gid
-    run_u = changepoint.cusum_run_length(cus.upper, sn, None if st is None else init("cusum_upper_run", 0.0),
-                                         seg=seg_n)
-    run_l = changepoint.cusum_run_length(cus.lower, sn, None if st is None else init("cusum_lower_run", 0.0),
-                                         seg=seg_n)
     ew = ewma(zn, sn, lam=lam, L=L, init=init("ewma", 0.0), count0=init("n", 0.0), seg=seg_n)
     mr_limit = mr_ucl_standardised()
     mr_new = of_new(mr)
@@ -248,6 +245,16 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
         "center": of_new(center_out), "sigma": of_new(sigma_out), "own_sigma": of_new(use_own),
         "group": gn},  # the point's row in the returned state (one row per group)
         copy=False)  # no block copy of 9 M rows
+    if on_points is not None:
+        on_points(points)
+    # Run rules on the standardised individuals (tail included for context).
+    events = apply_run_rules(z, starts, params["run_rules"]["set"], tuple(params["run_rules"]["rules"]),
+                             seg=seg).events
+    # Page's N+/N- counters, for the CUSUM onsets and the carried state.
+    run_u = changepoint.cusum_run_length(cus.upper, sn, None if st is None else init("cusum_upper_run", 0.0),
+                                         seg=seg_n)
+    run_l = changepoint.cusum_run_length(cus.lower, sn, None if st is None else init("cusum_lower_run", 0.0),
+                                         seg=seg_n)
     # Signals on crossings: beyond the limit now, not beyond it at the group's previous check
     # (for a group's first new row: its carried state against the previous limit).
     def crossed(above, above_before):
@@ -613,20 +620,28 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings, worker: ThreadP
                         "frozen_at, method FROM fresh")
             pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
         params = designing.result()
-        out = compute_charts(new, tail, state, own, pooled, params, starts=starts)
-        pts = out["points"]
         run_id = int(con.execute("SELECT coalesce(max(run_id), 0) + 1 FROM chart_runs").fetchall()[0][0])
         first_sig = int(con.execute("SELECT coalesce(max(signal_id), 0) + 1 FROM chart_signal_values").fetchall()[0][0])
         first_b = int(con.execute("SELECT coalesce(max(baseline_id), 0) + 1 FROM chart_baselines").fetchall()[0][0])
         data_end = None if new.empty else pd.Timestamp(new["measured_at"].max()).to_pydatetime()
-        st = out["state"]
-        lin, times = alongside.result()
+        storing = []
         with transaction(con):
-            # Arrow tables: registered without a copy. Points refer to their series by number.
-            series = series_ids(con, st[KEY])
-            values = pts[POINT_VALUES].assign(series_id=series[pts["group"].to_numpy()])
-            storing = worker.submit(_append, con, "chart_point_values", _arrow(values, nullable=("moving_range",)))
+            # The points' series, in the order of the groups of `new` (compute_charts' state order).
+            keys = _group_keys(new, starts)
+            series = series_ids(con, keys)
+
+            def store_points(pts):  # on the worker, once its reads are done, while the signals are worked out
+                values = pts[POINT_VALUES].assign(series_id=series[pts["group"].to_numpy()])
+                # Arrow tables: registered without a copy.
+                storing.append(worker.submit(_append, con, "chart_point_values",
+                                             _arrow(values, nullable=("moving_range",))))
             try:
+                out = compute_charts(new, tail, state, own, pooled, params, starts=starts, on_points=store_points)
+                pts, st = out["points"], out["state"]
+                if len(st) != len(keys) or any((st[c].astype(str).to_numpy() != keys[c].astype(str).to_numpy()).any()
+                                               for c in KEY):
+                    raise RuntimeError("chart groups out of step with their series numbers")
+                lin, times = alongside.result()
                 groups, sig, bl = _signals_groups_baselines(out, lin, times, params, settings, reader, run_id,
                                                             first_b)
                 # The rows to store, made while the points are still being stored.
@@ -635,9 +650,9 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings, worker: ThreadP
                     preserve_index=False)
                 groups, lin = _arrow(groups.assign(run_id=run_id)), _arrow(lin.assign(run_id=run_id))
             finally:  # the transaction ends (commit or rollback) only once the insert is done with it
-                wait([storing])
+                wait(storing)
             t_compute = time.perf_counter() - t0 - t_read
-            storing.result()
+            storing[0].result()
             with registered(con, "_bf_state_keys", st):
                 con.execute("DELETE FROM chart_state t USING _bf_state_keys s WHERE t.instrument_id = s.instrument_id "
                             "AND t.level = s.level AND t.baseline_period = s.baseline_period")
