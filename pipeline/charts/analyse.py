@@ -652,7 +652,8 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings, worker: ThreadP
             finally:  # the transaction ends (commit or rollback) only once the insert is done with it
                 wait(storing)
             t_compute = time.perf_counter() - t0 - t_read
-            storing[0].result()
+            for stored in storing:  # raises what the insert raised
+                stored.result()
             with registered(con, "_bf_state_keys", st):
                 con.execute("DELETE FROM chart_state t USING _bf_state_keys s WHERE t.instrument_id = s.instrument_id "
                             "AND t.level = s.level AND t.baseline_period = s.baseline_period")
