@@ -39,7 +39,9 @@ given. The benchmark checks that the loop's results equal the engine's on the sa
 signals with impact windows and p-values, baselines, X-bar/S groups, linearity) and prints the
 differences, so the two are known to do the same work. Printed ratios: end to end (loop estimate
 over the engine's full run) and work only (loop work over the engine's compute part, which now
-shares the two cores with the points insert).
+shares the two cores with the points insert). The database floor is the same sorted read and the
+same rows stored, in a fresh process on a fresh copy, with nothing computed: the part of a full
+run that the storage itself takes, and so the highest end-to-end ratio any engine could show here.
 """
 
 from __future__ import annotations
@@ -335,6 +337,48 @@ def _timed_analyse(path: str) -> None:
     print(json.dumps({"seconds": seconds, "cpu": cpu, "run": asdict(run)}, default=str))
 
 
+# The tables a full run fills, in the order analyse stores them.
+STORED = ("chart_point_values", "chart_signal_values", "chart_state", "chart_baselines", "chart_groups",
+          "chart_linearity")
+
+
+def _timed_floor(prepared: str, analysed: str) -> None:
+    """The database part of a full run alone: analyse's sorted read of the prepared fleet, then the
+    rows a full run stored (taken from `analysed`) inserted in one transaction, nothing computed.
+    Prints read and store seconds as JSON."""
+    import duckdb
+
+    from pipeline.batch_memory import freed_memory_kept
+    from pipeline.charts.analyse import read_chart_input
+    from pipeline.db import ANALYSE_MEMORY_LIMIT, memory_limit, open_database, registered, transaction
+
+    src = duckdb.connect(analysed, read_only=True)
+    rows = {t: src.sql(f"SELECT * FROM {t}").to_arrow_table() for t in STORED}  # noqa: S608
+    src.close()
+    con = open_database(prepared)
+    capacity = con.execute("SELECT count(*) FROM check_results").fetchall()[0][0]
+    with memory_limit(con, ANALYSE_MEMORY_LIMIT), freed_memory_kept():
+        t0 = time.perf_counter()
+        read_chart_input(con, False, 0, set(), capacity=capacity)
+        t1 = time.perf_counter()
+        with transaction(con):
+            for table, arrow in rows.items():
+                with registered(con, "_bench_rows", arrow):
+                    con.execute(f"INSERT INTO {table} SELECT * FROM _bench_rows")  # noqa: S608
+        t2 = time.perf_counter()
+    con.close()
+    print(json.dumps({"read": t1 - t0, "store": t2 - t1}))
+
+
+def _floor_in_new_process(prepared: Path, analysed: Path) -> dict:
+    """_timed_floor in a process of its own, started as the engine's timed runs are."""
+    done = subprocess.run([sys.executable, "-c", "from pipeline.batch_memory import prepare_batch_process; "
+                           "prepare_batch_process(); from benchmarks.bench_20_charts import _timed_floor; "
+                           f"_timed_floor({str(prepared)!r}, {str(analysed)!r})"],
+                          check=True, stdout=subprocess.PIPE, text=True)
+    return json.loads(done.stdout.strip().splitlines()[-1])
+
+
 def _analyse_in_new_process(path: Path) -> tuple[SimpleNamespace, float, dict]:
     """analyse_fleet timed in a process of its own, as `breathfleet run` (or `analyse`) runs it after
     an ingest: numpy imported after the console script's preparation (pipeline/batch_memory.py),
@@ -414,6 +458,13 @@ def main() -> None:
         rounds.append({"full": t_full, "read": tm["read"], "compute": tm["compute"], "store": tm["store"],
                        "sample": t_sample, "loop_work": loop_work, "loop": tm["read"] + loop_work + tm["store"],
                        "cpu": cpu})
+    # The database floor: the same read and the same rows stored, on a fresh copy of the prepared
+    # fleet, without computing anything (what no chart engine on this storage can go below).
+    floor_db = OUT / "charts-floor.duckdb"
+    shutil.copyfile(prepared, floor_db)
+    os.sync()
+    floor = _floor_in_new_process(floor_db, work)
+    floor_db.unlink()
     # The week arrives as an ingest delivers it: new check ids above every stored one. The
     # incremental time includes bringing check_results up to date for it.
     con = open_database(work)
@@ -440,6 +491,11 @@ def main() -> None:
           "scaled up by checks)")
     print(f"speed-up:        {e2e[0]:8.1f} x end to end, median ({e2e[1]:.1f}-{e2e[2]:.1f})   target >= 50 x;"
           f" work only {work_only[0]:.1f} x ({work_only[1]:.1f}-{work_only[2]:.1f}; loop work / engine compute)")
+    floor_s = floor["read"] + floor["store"]
+    loop_s = med([r["loop"] for r in rounds])[0]
+    print(f"database floor:  {floor_s:8.2f} s (the same sorted read {floor['read']:.2f} s and the same rows stored "
+          f"{floor['store']:.2f} s, nothing computed); on this storage no engine beats {loop_s / floor_s:.1f} x "
+          f"end to end against the median loop ({loop_s:.1f} s)")
     print(f"loop vs engine on the sample: {agreement}")
     ti = inc.timings
     print(f"incremental week:{t_inc:8.2f} s  ({inc.n_new_checks:,} checks; read {ti['read']:.2f} s incl. check_results "
