@@ -631,10 +631,10 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings, worker: ThreadP
             series = series_ids(con, keys)
 
             def store_points(pts):  # on the worker, once its reads are done, while the signals are worked out
-                values = pts[POINT_VALUES].assign(series_id=series[pts["group"].to_numpy()])
-                # Arrow tables: registered without a copy.
-                storing.append(worker.submit(_append, con, "chart_point_values",
-                                             _arrow(values, nullable=("moving_range",))))
+                def insert():  # the Arrow table (registered without a copy) is made on the worker too
+                    values = pts[POINT_VALUES].assign(series_id=series[pts["group"].to_numpy()])
+                    _append(con, "chart_point_values", _arrow(values, nullable=("moving_range",)))
+                storing.append(worker.submit(insert))
             try:
                 out = compute_charts(new, tail, state, own, pooled, params, starts=starts, on_points=store_points)
                 pts, st = out["points"], out["state"]
