@@ -370,11 +370,12 @@ def _timed_floor(prepared: str, analysed: str) -> None:
     print(json.dumps({"read": t1 - t0, "store": t2 - t1}))
 
 
-def _floor_in_new_process(prepared: Path, analysed: Path) -> dict:
-    """_timed_floor in a process of its own, started as the engine's timed runs are."""
+def _in_new_process(function: str, *args: str) -> dict:
+    """One of this module's timed functions run in a process of its own, started as `breathfleet`
+    starts (pipeline/batch_memory.py prepares it before numpy loads); its last printed line, as JSON."""
+    call = f"{function}({', '.join(repr(a) for a in args)})"
     done = subprocess.run([sys.executable, "-c", "from pipeline.batch_memory import prepare_batch_process; "
-                           "prepare_batch_process(); from benchmarks.bench_20_charts import _timed_floor; "
-                           f"_timed_floor({str(prepared)!r}, {str(analysed)!r})"],
+                           f"prepare_batch_process(); from benchmarks.bench_20_charts import {function}; {call}"],
                           check=True, stdout=subprocess.PIPE, text=True)
     return json.loads(done.stdout.strip().splitlines()[-1])
 
@@ -385,10 +386,7 @@ def _analyse_in_new_process(path: Path) -> tuple[SimpleNamespace, float, dict]:
     the database freshly opened, not the memory state this process is left in by preparing the
     fleet. Returns the run (its fields), its seconds, and its CPU seconds (user, kernel) and page
     faults: the host's speed at handling page faults varies, and with it the engine's time."""
-    done = subprocess.run([sys.executable, "-c", "from pipeline.batch_memory import prepare_batch_process; "
-                           "prepare_batch_process(); from benchmarks.bench_20_charts import _timed_analyse; "
-                           f"_timed_analyse({str(path)!r})"], check=True, stdout=subprocess.PIPE, text=True)
-    out = json.loads(done.stdout.strip().splitlines()[-1])
+    out = _in_new_process("_timed_analyse", str(path))
     return SimpleNamespace(**out["run"]), out["seconds"], out["cpu"]
 
 
@@ -463,7 +461,7 @@ def main() -> None:
     floor_db = OUT / "charts-floor.duckdb"
     shutil.copyfile(prepared, floor_db)
     os.sync()
-    floor = _floor_in_new_process(floor_db, work)
+    floor = _in_new_process("_timed_floor", str(floor_db), str(work))
     floor_db.unlink()
     # The week arrives as an ingest delivers it: new check ids above every stored one. The
     # incremental time includes bringing check_results up to date for it.
