@@ -38,10 +38,13 @@ full-run figure includes everything, also computing the fleet pooled sigma, whic
 given. The benchmark checks that the loop's results equal the engine's on the sample (points,
 signals with impact windows and p-values, baselines, X-bar/S groups, linearity) and prints the
 differences, so the two are known to do the same work. Printed ratios: end to end (loop estimate
-over the engine's full run) and work only (loop work over the engine's compute part, which now
-shares the two cores with the points insert). The database floor is the same sorted read and the
-same rows stored, in a fresh process on a fresh copy, with nothing computed: the part of a full
-run that the storage itself takes, and so the highest end-to-end ratio any engine could show here.
+over the engine's full run); work only (loop work over the engine's compute part, which now
+shares the two cores with the points insert); and work alone (loop work over the engine's work
+timed as the loop's is: in a process of its own, given its inputs in memory, nothing stored; it
+also computes the fleet pooled sigma, which the loop is given; its points and signals are counted
+against the full run's). The database floor is the same sorted read and the same rows stored, in
+a fresh process on a fresh copy, with nothing computed: the part of a full run that the storage
+itself takes, and so the highest end-to-end ratio any engine could show here.
 """
 
 from __future__ import annotations
@@ -370,6 +373,48 @@ def _timed_floor(prepared: str, analysed: str) -> None:
     print(json.dumps({"read": t1 - t0, "store": t2 - t1}))
 
 
+def _timed_compute(prepared: str) -> None:
+    """The engine's chart work alone, timed as the loop is: given its inputs in memory, nothing
+    stored. Read first, untimed (as the loop is given its rows, the control-check times and the
+    verification values): the chart input of a full run, the verification checks and the control-check
+    times, with the kernels loaded. Timed: the fleet pooled sigma (which the loop is given), every
+    chart (compute_charts), the linearity fits, and the X-bar/S groups, run lengths, p-values,
+    fleet significance and impact windows of the signals. Prints seconds as JSON."""
+    import duckdb
+
+    from pipeline.batch_memory import collector_paused, freed_memory_kept
+    from pipeline.charts import kernels
+    from pipeline.charts.analyse import (_signals_groups_baselines, _starts, chart_parameters, compute_charts,
+                                         read_chart_input, read_verification_checks)
+    from pipeline.charts.baselines import pooled_sigma
+    from pipeline.charts.linearity import fit_linearity
+    from pipeline.charts.signals import control_check_times, unit_codes
+    from pipeline.db import ANALYSE_MEMORY_LIMIT, memory_limit
+    from pipeline.settings import Settings
+
+    settings = Settings()
+    con = duckdb.connect(prepared, read_only=True)
+    con.execute("SET enable_progress_bar = false")
+    capacity = con.execute("SELECT count(*) FROM check_results").fetchall()[0][0]
+    with memory_limit(con, ANALYSE_MEMORY_LIMIT), freed_memory_kept(), collector_paused():
+        new = read_chart_input(con, False, 0, set(), capacity=capacity)
+        verification = read_verification_checks(con, new)
+        _, units, present = unit_codes(new["instrument_id"])
+        times = control_check_times(con, units[present], new["measured_at"].min())
+        kernels.load_all()
+        params = chart_parameters(settings)
+        empty = pd.DataFrame()
+        t0 = time.perf_counter()
+        starts = _starts(new)
+        pooled = pooled_sigma(new, starts)
+        out = compute_charts(new, empty, empty, empty, pooled, params, starts=starts)
+        lin = fit_linearity(verification, settings.charts.verification_window_minutes)
+        _, signals, _ = _signals_groups_baselines(out, lin, times, params, settings, con, 1, 1)
+        seconds = time.perf_counter() - t0
+    con.close()
+    print(json.dumps({"seconds": seconds, "points": len(out["points"]), "signals": len(signals)}))
+
+
 def _in_new_process(function: str, *args: str) -> dict:
     """One of this module's timed functions run in a process of its own, started as `breathfleet`
     starts (pipeline/batch_memory.py prepares it before numpy loads); its last printed line, as JSON."""
@@ -438,6 +483,9 @@ def main() -> None:
             shutil.copyfile(prepared, work)
             os.sync()
         full, t_full, cpu = _analyse_in_new_process(work)
+        work_alone = _in_new_process("_timed_compute", str(prepared))
+        if (work_alone["points"], work_alone["signals"]) != (full.n_new_checks, full.n_signals):
+            raise RuntimeError(f"the engine's work alone gave other results than its full run: {work_alone}")
         con = open_database(work)
         if not i:
             through = con.execute("SELECT checks_through FROM chart_runs WHERE run_id = $r",
@@ -455,7 +503,7 @@ def main() -> None:
         loop_work = t_sample * full.n_new_checks / max(len(frame), 1)
         rounds.append({"full": t_full, "read": tm["read"], "compute": tm["compute"], "store": tm["store"],
                        "sample": t_sample, "loop_work": loop_work, "loop": tm["read"] + loop_work + tm["store"],
-                       "cpu": cpu})
+                       "work_alone": work_alone["seconds"], "cpu": cpu})
     # The database floor: the same read and the same rows stored, on a fresh copy of the prepared
     # fleet, without computing anything (what no chart engine on this storage can go below).
     floor_db = OUT / "charts-floor.duckdb"
@@ -479,16 +527,20 @@ def main() -> None:
         print(f"round {i}: full run {r['full']:6.2f} s (read {r['read']:.2f}, compute {r['compute']:.2f}, "
               f"store {r['store']:.2f}; CPU user {r['cpu']['user']:.1f} s, kernel {r['cpu']['kernel']:.1f} s, "
               f"{r['cpu']['faults']:,} page faults); loop sample {r['sample']:.2f} s -> loop {r['loop']:.1f} s; "
-              f"{r['loop'] / r['full']:.1f} x end to end, {r['loop_work'] / r['compute']:.1f} x work only")
+              f"{r['loop'] / r['full']:.1f} x end to end, {r['loop_work'] / r['compute']:.1f} x work only; "
+              f"engine work alone {r['work_alone']:.2f} s, {r['loop_work'] / r['work_alone']:.1f} x")
     full_s = med([r["full"] for r in rounds])
     e2e = med([r["loop"] / r["full"] for r in rounds])
     work_only = med([r["loop_work"] / r["compute"] for r in rounds])
+    alone = med([r["loop_work"] / r["work_alone"] for r in rounds])
     print(f"full run:        {full_s[0]:8.2f} s median of {ROUNDS} ({full_s[1]:.2f}-{full_s[2]:.2f}; "
           f"{full.n_new_checks:,} checks, {full.n_signals:,} signals)   target < 30 s")
     print(f"per-unit loop:   engine read + store + loop work (sample of {len(units)} units, {len(frame):,} checks, "
           "scaled up by checks)")
     print(f"speed-up:        {e2e[0]:8.1f} x end to end, median ({e2e[1]:.1f}-{e2e[2]:.1f})   target >= 50 x;"
-          f" work only {work_only[0]:.1f} x ({work_only[1]:.1f}-{work_only[2]:.1f}; loop work / engine compute)")
+          f" work only {work_only[0]:.1f} x ({work_only[1]:.1f}-{work_only[2]:.1f}; loop work / engine compute part)")
+    print(f"work alone:      {alone[0]:8.1f} x, median ({alone[1]:.1f}-{alone[2]:.1f}): loop work / the engine's work "
+          "timed as the loop is (inputs in memory, nothing stored)")
     floor_s = floor["read"] + floor["store"]
     loop_s = med([r["loop"] for r in rounds])[0]
     print(f"database floor:  {floor_s:8.2f} s (the same sorted read {floor['read']:.2f} s and the same rows stored "
