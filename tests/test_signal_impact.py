@@ -49,3 +49,55 @@ def test_impact_checks_equal_a_direct_count():
     # times that cover every signal are used as they are: no connection needed
     times = control_check_times(con, ["D", "C", "B", "A"], start_min)
     assert impact_checks(None, sig.assign(instrument_id=units), times).tolist() == want
+
+
+class _CountingConnection:
+    """A connection that counts the queries run through it."""
+
+    def __init__(self, con):
+        self.con, self.queries = con, 0
+
+    def execute(self, *args, **kwargs):
+        self.queries += 1
+        return self.con.execute(*args, **kwargs)
+
+    def __getattr__(self, name):
+        return getattr(self.con, name)
+
+
+def test_impact_checks_with_one_start_per_unit():
+    """Control-check times read from one start per unit (as analyse reads them: each unit from its
+    earliest possible onset) give the direct counts; they are used as they are where every unit's
+    start comes at or before its signals' onsets, and read again where one unit's comes later."""
+    rng = np.random.default_rng(5)
+    con = duckdb.connect(":memory:")
+    migrate(con)
+    n = 300
+    checks = pd.DataFrame({
+        "check_id": np.arange(1, n + 1), "instrument_id": rng.choice(["A", "B", "C"], n),
+        "measured_at": pd.Timestamp("2026-03-01") + pd.to_timedelta(rng.integers(0, 20 * 86400, n), unit="s"),
+        "lot_id": "L", "check_type": rng.choice(["control", "daily"], n), "target": 0.08,
+        "measured": 0.08, "units": "g/210L", "simulator_temp_c": None, "pressure_kpa": None, "site_id": None,
+        "operator_id": None, "outcome": "pass", "file_id": 1, "line": np.arange(n)})
+    con.register("c", checks)
+    con.execute("INSERT INTO checks SELECT * FROM c")
+    pick = checks.sample(40, random_state=2)
+    onset = pick["measured_at"] - pd.to_timedelta(rng.integers(0, 4 * 86400, len(pick)), unit="s")
+    sig = pd.DataFrame({"instrument_id": pick["instrument_id"].to_numpy(), "measured_at": pick["measured_at"].to_numpy(),
+                        "onset_at": onset.to_numpy()})
+    ctl = checks[checks["check_type"] == "control"]
+    want = [int(((ctl["instrument_id"] == u) & (ctl["measured_at"] >= a) & (ctl["measured_at"] <= b)).sum())
+            for u, a, b in zip(sig["instrument_id"], sig["onset_at"], sig["measured_at"])]
+    assert max(want) > 1
+    first_onset = sig.groupby("instrument_id")["onset_at"].min()
+    names = ["A", "B", "C"]
+    assert len(set(first_onset[names])) == 3  # the starts differ: one time for all would not test this
+    counting = _CountingConnection(con)
+    times = control_check_times(con, names, first_onset[names].to_numpy())
+    assert impact_checks(counting, sig, times).tolist() == want
+    assert counting.queries == 0
+    late = first_onset[names].to_numpy().copy()
+    late[1] += np.timedelta64(1, "s")  # B's times start one second after its earliest onset
+    times = control_check_times(con, names, late)
+    assert impact_checks(counting, sig, times).tolist() == want
+    assert counting.queries == 1

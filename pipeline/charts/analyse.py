@@ -124,10 +124,14 @@ def compute_charts(new: pd.DataFrame, tail: pd.DataFrame, state: pd.DataFrame, o
         new = new.assign(old=False)
         tail = tail.assign(old=True).merge(new[KEY + ["technology", "standard_kind"]].drop_duplicates(KEY),
                                            how="left", on=KEY)
-        frame = pd.concat([tail, new], ignore_index=True).sort_values(
-            KEY + ["old", "measured_at", "check_id"], ascending=[True, True, True, False, True, True],
-            kind="stable").reset_index(drop=True)
+        frame = pd.concat([tail, new], ignore_index=True)
+        # By KEY, stored points before new checks, then time and id (a stable sort on arrays).
         old = frame["old"].to_numpy()
+        order = np.lexsort((frame["check_id"].to_numpy(), frame["measured_at"].to_numpy(), ~old,
+                            frame["baseline_period"].to_numpy(), frame["level"].to_numpy(),
+                            _sort_codes(frame["instrument_id"])))
+        frame = frame.take(order).reset_index(drop=True)
+        old = old[order]
     else:
         frame = new.reset_index(drop=True)
         old = np.zeros(len(frame), dtype=bool)
@@ -430,7 +434,11 @@ def _sort_codes(col: pd.Series) -> np.ndarray:
 
 
 def _load_state(con, keys: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
-    with registered(con, "_bf_keys", keys):
+    """The stored state, own baselines and last points (tail) of the chart groups `keys` (KEY, in
+    the order of the chart input). The tail's KEY columns are taken from `keys` by row (its unit
+    names keep their categorical codes): a week's tail is about a million points, and sorting or
+    merging them by unit name strings was the slow part of an incremental run."""
+    with registered(con, "_bf_keys", keys.assign(key_row=np.arange(len(keys), dtype=np.int64))):
         state = con.execute("SELECT s.* FROM chart_state s JOIN _bf_keys USING (instrument_id, level, baseline_period)").df()
         own = con.execute("SELECT b.instrument_id, b.level, b.baseline_period, b.center, b.sigma FROM chart_baselines b "
                           "JOIN _bf_keys USING (instrument_id, level, baseline_period) WHERE b.sigma_source = 'unit' "
@@ -439,12 +447,14 @@ def _load_state(con, keys: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame, pd
         # The last TAIL positions of each group: positions run 1..n (chart_state.n), so the window
         # only ranks the few rows above n - TAIL (all rows of a group without state).
         tail = con.execute(
-            "SELECT p.instrument_id, p.level, p.baseline_period, p.check_id, p.measured_at, p.relative_error, p.position, p.z "
+            "SELECT k.key_row, p.check_id, p.measured_at, p.relative_error, p.position, p.z "
             "FROM chart_points p JOIN (SELECT k.*, s.n FROM _bf_keys k LEFT JOIN chart_state s "
             "USING (instrument_id, level, baseline_period)) k USING (instrument_id, level, baseline_period) "
             f"WHERE k.n IS NULL OR p.position > k.n - {TAIL} "
-            f"QUALIFY row_number() OVER (PARTITION BY p.instrument_id, p.level, p.baseline_period ORDER BY p.position DESC) <= {TAIL}"
+            f"QUALIFY row_number() OVER (PARTITION BY k.key_row ORDER BY p.position DESC) <= {TAIL}"
         ).df()
+    row = tail.pop("key_row").to_numpy()
+    tail = pd.DataFrame({c: keys[c].array.take(row) for c in KEY} | dict(tail.items()), copy=False)
     return state, own, tail
 
 
@@ -478,20 +488,42 @@ def _read_stored_onsets(reader: duckdb.DuckDBPyConnection, sig: pd.DataFrame, on
     sig.loc[at["index"].to_numpy(), "onset_at"] = at["measured_at"].to_numpy()
 
 
-def _read_alongside(reader: duckdb.DuckDBPyConnection, new: pd.DataFrame,
-                    settings: Settings) -> tuple[pd.DataFrame, ControlCheckTimes | None]:
+def _load_kernels() -> None:
+    from pipeline.charts import kernels
+    kernels.load_all()
+
+
+def _read_alongside(reader: duckdb.DuckDBPyConnection, new: pd.DataFrame, settings: Settings,
+                    state: pd.DataFrame) -> tuple[pd.DataFrame, ControlCheckTimes | None]:
     """What a run prepares while it computes the charts (on another thread; reads on a cursor): the
-    compiled kernels, loaded from numba's cache first, as the charts need them within a second; the
     linearity fits of the verification checks among `new`; and the control-check times of its
-    units from its first check on (for the impact windows)."""
-    if not new.empty:
-        from pipeline.charts import kernels
-        kernels.load_all()
+    units (for the impact windows), each from the earliest onset a CUSUM signal of this run can
+    have on it: the unit's first new check, or the first check of one of its CUSUM runs still going
+    on in `state` (chart_state rows); impact_checks reads again only if a signal's onset is earlier."""
     lin = fit_linearity(read_verification_checks(reader, new), settings.charts.verification_window_minutes)
     if new.empty:
         return lin, None
-    _, units, present = unit_codes(new["instrument_id"])
-    return lin, control_check_times(reader, units[present], new["measured_at"].min())
+    codes, units, present = unit_codes(new["instrument_id"])
+    names = units[present]
+    # Per unit: its first new check (new is sorted by unit first: one run of rows per unit), or the
+    # first check of a CUSUM run still going on, if earlier.
+    at = new["measured_at"].to_numpy()
+    first_rows = np.flatnonzero(group_starts(codes))
+    since = np.minimum.reduceat(at.view(np.int64), first_rows).view(at.dtype)
+    if not np.array_equal(codes[first_rows], present):  # not sorted by unit after all
+        since = pd.Series(at).groupby(codes).min().reindex(present).to_numpy()
+    if len(state):
+        runs = np.maximum(state["cusum_upper_run"].to_numpy(), state["cusum_lower_run"].to_numpy())
+        going = runs > 0
+        if going.any():
+            run_starts = state.loc[going, KEY].assign(position=state["n"].to_numpy()[going] - runs[going] + 1)
+            with registered(reader, "_bf_run_starts", run_starts):
+                first = reader.execute("SELECT p.instrument_id, min(p.measured_at) AS at FROM chart_points p "
+                                       "JOIN _bf_run_starts USING (instrument_id, level, baseline_period, position) "
+                                       "GROUP BY ALL").df()
+            earlier = first.set_index("instrument_id")["at"].reindex(names.astype(str)).to_numpy(dtype="datetime64[us]")
+            since = np.where(earlier < since, earlier, since)  # NaT compares False: the unit's first new check
+    return lin, control_check_times(reader, names, since)
 
 
 def _signals_groups_baselines(out: dict, lin: pd.DataFrame, times: ControlCheckTimes | None, params: dict,
@@ -573,6 +605,7 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings, worker: ThreadP
     t0 = time.perf_counter()
     started = datetime.now(UTC).replace(tzinfo=None)
     designing = worker.submit(chart_parameters, settings)  # run-length designs: 0.15 s of numerics
+    worker.submit(_load_kernels)  # numba and the kernels from its cache: 0.3-0.4 s, done during the read
     sync_standards_settings(con, settings)
     mode = "incremental" if con.execute("SELECT count(*) FROM chart_point_values").fetchall()[0][0] else "full"
     with_rb = bool(con.execute("SELECT count(*) > 0 FROM chart_rebaselines").fetchall()[0][0])
@@ -609,7 +642,7 @@ def _analyse(con: duckdb.DuckDBPyConnection, settings: Settings, worker: ThreadP
     pooled = con.execute("SELECT technology, standard_kind, level, sigma FROM chart_pooled_sigma").df()
     t_read = time.perf_counter() - t0
     reader = con.cursor()
-    alongside = worker.submit(_read_alongside, reader, new, settings)
+    alongside = worker.submit(_read_alongside, reader, new, settings, state)
     try:
         missing = np.isnan(pooled_lookup(new, pooled)) if len(pooled) else np.ones(len(new), dtype=bool)
         if missing.any():

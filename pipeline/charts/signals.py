@@ -71,12 +71,16 @@ SHIFT = np.int64(1) << 46  # key = unit code x SHIFT + microseconds after lo: 2^
 
 @dataclass(frozen=True)
 class ControlCheckTimes:
-    """The control-check times of some units from `lo` on, as sorted int64 keys: the unit's
-    position in `units` x SHIFT + microseconds after `lo`."""
+    """The control-check times of some units, each from its own start on, as sorted int64 keys:
+    the unit's position in `units` x SHIFT + microseconds after `lo` (the earliest start)."""
 
     units: pd.Index
-    lo: np.datetime64
+    since: np.ndarray  # datetime64[us], one per unit: its times are complete from here on
     keys: np.ndarray
+
+    @property
+    def lo(self) -> np.datetime64:
+        return self.since.min()
 
 
 def unit_codes(unit: pd.Series) -> tuple[np.ndarray, pd.Index, np.ndarray]:
@@ -89,20 +93,21 @@ def unit_codes(unit: pd.Series) -> tuple[np.ndarray, pd.Index, np.ndarray]:
     return codes, categories, np.flatnonzero(np.bincount(codes, minlength=len(categories)))
 
 
-def control_check_times(con, units, lo) -> ControlCheckTimes:
-    """One read of the control-check times of `units` (names) at or after `lo`, keyed by DuckDB and
-    sorted by numpy (a fleet's 5.2 million keys: 0.26-0.30 s with ORDER BY, 0.14 s with np.sort)."""
+def control_check_times(con, units, since) -> ControlCheckTimes:
+    """One read of the control-check times of `units` (names) at or after `since` (one time for all,
+    or one per unit), keyed by DuckDB and sorted by numpy (a fleet's 5.2 million keys: 0.26-0.30 s
+    with ORDER BY, 0.14 s with np.sort)."""
     names = pd.Index(np.asarray(units, dtype=object)).astype(str)
-    lo = np.datetime64(pd.Timestamp(lo).to_datetime64(), "us")
+    since = np.broadcast_to(pd.to_datetime(np.atleast_1d(since)).to_numpy(dtype="datetime64[us]"), (len(names),))
+    lo = since.min() if len(names) else np.datetime64("1970-01-01", "us")
     frame = pd.DataFrame({"instrument_id": np.asarray(names, dtype=object),
-                          "code": np.arange(len(names), dtype=np.int64)})
+                          "code": np.arange(len(names), dtype=np.int64), "since": since})
     with registered(con, "_bf_signal_units", frame):
         keys = con.execute("SELECT u.code * $shift + (epoch_us(c.measured_at) - $lo_us) AS key FROM checks c "
                            "JOIN _bf_signal_units u USING (instrument_id) "
-                           "WHERE c.check_type = 'control' AND c.measured_at >= $lo",
-                           {"lo": pd.Timestamp(lo).to_pydatetime(), "shift": int(SHIFT),
-                            "lo_us": int(lo.astype(np.int64))}).fetchnumpy()["key"]
-    return ControlCheckTimes(names, lo, np.sort(np.asarray(keys, dtype=np.int64)))
+                           "WHERE c.check_type = 'control' AND c.measured_at >= u.since",
+                           {"shift": int(SHIFT), "lo_us": int(lo.astype(np.int64))}).fetchnumpy()["key"]
+    return ControlCheckTimes(names, np.array(since), np.sort(np.asarray(keys, dtype=np.int64)))
 
 
 def impact_checks(con, sig: pd.DataFrame, times: ControlCheckTimes | None = None) -> np.ndarray:
@@ -119,7 +124,7 @@ def impact_checks(con, sig: pd.DataFrame, times: ControlCheckTimes | None = None
     onset = sig["onset_at"].fillna(sig["measured_at"]).to_numpy(dtype="datetime64[us]")
     at = sig["measured_at"].to_numpy(dtype="datetime64[us]")
     where = times.units.get_indexer(names) if times is not None else None
-    if times is None or (where < 0).any() or onset.min() < times.lo:
+    if times is None or (where < 0).any() or (onset < times.since[where][np.searchsorted(present, cat_codes)]).any():
         times = control_check_times(con, names, onset.min())
         where = np.arange(len(names))
     code_of = np.zeros(len(categories), dtype=np.int64)
