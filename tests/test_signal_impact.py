@@ -10,19 +10,24 @@ from pipeline.charts.signals import control_check_times, impact_checks
 from pipeline.db import migrate
 
 
-def test_impact_checks_equal_a_direct_count():
-    rng = np.random.default_rng(3)
+def _database_of_checks(rng, n: int, start: str, days: int, check_types: list[str]):
+    """An in-memory database with n checks of units A, B and C at random times over `days` days."""
     con = duckdb.connect(":memory:")
     migrate(con)
-    n = 400
     checks = pd.DataFrame({
         "check_id": np.arange(1, n + 1), "instrument_id": rng.choice(["A", "B", "C"], n),
-        "measured_at": pd.Timestamp("2026-01-01") + pd.to_timedelta(rng.integers(0, 30 * 86400, n), unit="s"),
-        "lot_id": "L", "check_type": rng.choice(["control", "daily", "calibration"], n), "target": 0.08,
+        "measured_at": pd.Timestamp(start) + pd.to_timedelta(rng.integers(0, days * 86400, n), unit="s"),
+        "lot_id": "L", "check_type": rng.choice(check_types, n), "target": 0.08,
         "measured": 0.08, "units": "g/210L", "simulator_temp_c": None, "pressure_kpa": None, "site_id": None,
         "operator_id": None, "outcome": "pass", "file_id": 1, "line": np.arange(n)})
     con.register("c", checks)
     con.execute("INSERT INTO checks SELECT * FROM c")
+    return con, checks
+
+
+def test_impact_checks_equal_a_direct_count():
+    rng = np.random.default_rng(3)
+    con, checks = _database_of_checks(rng, 400, "2026-01-01", 30, ["control", "daily", "calibration"])
     # signals on check times (inclusive ends), some with an onset before, some without one
     pick = checks.sample(60, random_state=1)
     onset = pick["measured_at"] - pd.to_timedelta(rng.integers(0, 5 * 86400, len(pick)), unit="s")
@@ -70,17 +75,7 @@ def test_impact_checks_with_one_start_per_unit():
     earliest possible onset) give the direct counts; they are used as they are where every unit's
     start comes at or before its signals' onsets, and read again where one unit's comes later."""
     rng = np.random.default_rng(5)
-    con = duckdb.connect(":memory:")
-    migrate(con)
-    n = 300
-    checks = pd.DataFrame({
-        "check_id": np.arange(1, n + 1), "instrument_id": rng.choice(["A", "B", "C"], n),
-        "measured_at": pd.Timestamp("2026-03-01") + pd.to_timedelta(rng.integers(0, 20 * 86400, n), unit="s"),
-        "lot_id": "L", "check_type": rng.choice(["control", "daily"], n), "target": 0.08,
-        "measured": 0.08, "units": "g/210L", "simulator_temp_c": None, "pressure_kpa": None, "site_id": None,
-        "operator_id": None, "outcome": "pass", "file_id": 1, "line": np.arange(n)})
-    con.register("c", checks)
-    con.execute("INSERT INTO checks SELECT * FROM c")
+    con, checks = _database_of_checks(rng, 300, "2026-03-01", 20, ["control", "daily"])
     pick = checks.sample(40, random_state=2)
     onset = pick["measured_at"] - pd.to_timedelta(rng.integers(0, 4 * 86400, len(pick)), unit="s")
     sig = pd.DataFrame({"instrument_id": pick["instrument_id"].to_numpy(), "measured_at": pick["measured_at"].to_numpy(),
