@@ -435,9 +435,9 @@ def _sort_codes(col: pd.Series) -> np.ndarray:
 
 def _load_state(con, keys: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
     """The stored state, own baselines and last points (tail) of the chart groups `keys` (KEY, in
-    the order of the chart input). The tail's KEY columns are taken from `keys` by row (its unit
-    names keep their categorical codes): a week's tail is about a million points, and sorting or
-    merging them by unit name strings was the slow part of an incremental run."""
+    the order of the chart input). The tail's KEY columns are taken from `keys` by row, so its unit
+    names keep their categorical codes: merging and sorting a week's tail (115 thousand points on
+    the benchmark fleet) by unit name strings took 0.2 s of compute_charts' 0.54 s (line profile)."""
     with registered(con, "_bf_keys", keys.assign(key_row=np.arange(len(keys), dtype=np.int64))):
         state = con.execute("SELECT s.* FROM chart_state s JOIN _bf_keys USING (instrument_id, level, baseline_period)").df()
         own = con.execute("SELECT b.instrument_id, b.level, b.baseline_period, b.center, b.sigma FROM chart_baselines b "
