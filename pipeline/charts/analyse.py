@@ -476,13 +476,19 @@ def _append(con: duckdb.DuckDBPyConnection, table: str, rows, *, or_ignore: bool
         con.execute(f"INSERT {'OR IGNORE ' if or_ignore else ''}INTO {table} BY NAME SELECT * FROM {name}")
 
 
+def _stored_point_times(reader: duckdb.DuckDBPyConnection, rows: pd.DataFrame) -> pd.DataFrame:
+    """`rows` (KEY, position, other columns) with the measured_at of the stored point at that
+    position of that chart group; rows without one are left out."""
+    with registered(reader, "_bf_positions", rows):
+        return reader.execute("SELECT r.*, p.measured_at FROM _bf_positions r JOIN chart_points p "
+                              "USING (instrument_id, level, baseline_period, position)").df()
+
+
 def _read_stored_onsets(reader: duckdb.DuckDBPyConnection, sig: pd.DataFrame, onsets: pd.DataFrame) -> None:
     """Fill in sig.onset_at of the CUSUM signals whose onset is a point stored by an earlier run:
     the time of the point at the onset position of the signal's group (onsets: compute_charts'
     onsets_stored)."""
-    with registered(reader, "_bf_onsets", onsets):
-        found = reader.execute("SELECT o.check_id, o.direction, p.measured_at FROM _bf_onsets o JOIN chart_points p "
-                               "USING (instrument_id, level, baseline_period, position)").df()
+    found = _stored_point_times(reader, onsets)[["check_id", "direction", "measured_at"]]
     cusum = sig.loc[(sig["chart"] == "cusum").to_numpy(), ["check_id", "direction"]]
     at = cusum.astype({"direction": str}).reset_index().merge(found, on=["check_id", "direction"])
     sig.loc[at["index"].to_numpy(), "onset_at"] = at["measured_at"].to_numpy()
@@ -505,23 +511,17 @@ def _read_alongside(reader: duckdb.DuckDBPyConnection, new: pd.DataFrame, settin
         return lin, None
     codes, units, present = unit_codes(new["instrument_id"])
     names = units[present]
-    # Per unit: its first new check (new is sorted by unit first: one run of rows per unit), or the
-    # first check of a CUSUM run still going on, if earlier.
+    # Per unit: its first new check (new is sorted by KEY, unit first: one run of rows per unit),
+    # or the first check of a CUSUM run still going on, if earlier.
     at = new["measured_at"].to_numpy()
-    first_rows = np.flatnonzero(group_starts(codes))
-    since = np.minimum.reduceat(at.view(np.int64), first_rows).view(at.dtype)
-    if not np.array_equal(codes[first_rows], present):  # not sorted by unit after all
-        since = pd.Series(at).groupby(codes).min().reindex(present).to_numpy()
+    since = np.minimum.reduceat(at.view(np.int64), np.flatnonzero(group_starts(codes))).view(at.dtype)
     if len(state):
         runs = np.maximum(state["cusum_upper_run"].to_numpy(), state["cusum_lower_run"].to_numpy())
         going = runs > 0
         if going.any():
             run_starts = state.loc[going, KEY].assign(position=state["n"].to_numpy()[going] - runs[going] + 1)
-            with registered(reader, "_bf_run_starts", run_starts):
-                first = reader.execute("SELECT p.instrument_id, min(p.measured_at) AS at FROM chart_points p "
-                                       "JOIN _bf_run_starts USING (instrument_id, level, baseline_period, position) "
-                                       "GROUP BY ALL").df()
-            earlier = first.set_index("instrument_id")["at"].reindex(names.astype(str)).to_numpy(dtype="datetime64[us]")
+            first = _stored_point_times(reader, run_starts).groupby("instrument_id")["measured_at"].min()
+            earlier = first.reindex(names.astype(str)).to_numpy(dtype="datetime64[us]")
             since = np.where(earlier < since, earlier, since)  # NaT compares False: the unit's first new check
     return lin, control_check_times(reader, names, since)
 
